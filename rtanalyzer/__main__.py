@@ -1,0 +1,3 @@
+from rtanalyzer.cli.main import main
+
+raise SystemExit(main())
