@@ -47,7 +47,8 @@ def test_sideband_json_is_exactly_one_object(tmp_path, capsys):
     # Carrier 4000 Hz, tones 500 and 1000 Hz above it, unwanted 30 and 40 dB down.
     comps = [(4500.0, -10.0, 0.1), (5000.0, -10.0, 0.2), (3500.0, -40.0, 0.3), (3000.0, -50.0, 0.4)]
     wav = write_wav(tmp_path / "two.wav", synth(comps, RATE, 1.0, NOISE, seed=1))
-    code, out, err = run(["analyze", "sideband", wav, "--tone", 1000, "--tone", 500, "--carrier", 4000, "--json"], capsys)
+    argv = ["analyze", "sideband", wav, "--tone", 1000, "--tone", 500, "--carrier", 4000, "--json"]
+    code, out, err = run(argv, capsys)
     assert (code, err) == (0, "")
     figures = json.loads(out)  # the whole of stdout is one JSON object
     assert isinstance(figures, dict)
@@ -79,7 +80,8 @@ def test_channel_two_through_the_cli(tmp_path, capsys):
     left = synth([(5000.0, -6.0, 0.3), (3000.0, -26.0, 1.0)], RATE, 1.0, NOISE, 2)
     right = synth([(5000.0, -6.0, 0.3), (3000.0, -51.0, 1.0)], RATE, 1.0, NOISE, 3)
     wav = write_wav(tmp_path / "stereo.wav", np.column_stack([left, right]))
-    code, out, _ = run(["analyze", "sideband", wav, "--tone", 1000, "--carrier", 4000, "--channel", 2, "--json"], capsys)
+    argv = ["analyze", "sideband", wav, "--tone", 1000, "--carrier", 4000, "--channel", 2, "--json"]
+    code, out, _ = run(argv, capsys)
     assert code == 0
     assert json.loads(out)["points"][0]["sideband_suppression_db"] == pytest.approx(45.0, abs=0.2)
 
@@ -116,14 +118,22 @@ def test_twotone_json_and_text(tmp_path, capsys):
 
 
 def test_first_run_notice_keeps_json_clean(tmp_path, capsys, monkeypatch):
-    # A brand-new user (empty config dir) sees the safety notice on stderr; stdout stays one
-    # JSON object.
+    # The safety notice comes with the first command that drives or listens to a rig (here the
+    # live analyzer on the simulated bench), on stderr: stdout stays one JSON object a line.
+    # A measurement of a file shows no notice, so its errors stay one line.
     monkeypatch.setenv("RTANALYZER_CONFIG_DIR", str(tmp_path / "fresh-config"))
     wav = sideband_wav(tmp_path)
     code, out, err = run(["analyze", "sideband", wav, "--tone", 1000, "--carrier", 4000, "--json"], capsys)
     assert code == 0
     assert json.loads(out)["measurement"] == "sideband"
+    assert err == ""
+    code, out, err = run(["live", "--headless", "--source", "sim", "--seconds", "0.6", "--jsonl"], capsys)
+    assert code == 0
+    lines = out.splitlines()
+    assert lines and all(json.loads(line)["measurement"] == "sideband" for line in lines)
     assert "Safety" in err or "safety" in err
+    code, out, err = run(["live", "--headless", "--source", "sim", "--seconds", "0.3", "--jsonl"], capsys)
+    assert "afety" not in err  # once per user
 
 
 # ---- bad input ---------------------------------------------------------------------------

@@ -195,6 +195,22 @@ def test_dc_offset_and_mains_hum_are_not_components(carrier):
     assert all(f > 100.0 for f in reported)
 
 
+def test_a_mains_hum_harmonic_is_not_taken_for_the_wanted_tone():
+    # Conventions: mains hum is not a tone; hum from rectifiers and transformers carries odd
+    # harmonics of the mains frequency (common practice, no source). Here 50 Hz at -10 dBFS and
+    # its 3rd harmonic (150 Hz) at -15 dBFS sit beside a -20 dBFS wanted tone at 2500 Hz, with
+    # no --carrier. Acceptable: the right lock, or a one-line PlanError asking for --carrier.
+    # Not acceptable: a suppression figure for a "wanted tone" at 150 Hz.
+    comps = [(2500.0, -20.0, 0.3), (1500.0, -70.0, 1.0), (50.0, -10.0, 0.0), (150.0, -15.0, 0.4)]
+    x = synth(comps, RATE, 1.0, NOISE, 9, dc=0.01)
+    try:
+        r = measure(x, {"tone": [1000.0]})
+    except PlanError as exc:
+        assert "--carrier" in str(exc)
+        return
+    assert r["points"][0]["wanted_hz"] == pytest.approx(2500.0, abs=0.1)
+
+
 def test_clipped_capture_is_flagged_with_a_warning():
     # Common practice, no source: a run of samples at full scale is a clip.
     x = np.clip(synth([(5000.0, 2.0, 0.3), (3000.0, -38.0, 1.0)], RATE, 1.0, NOISE, 10), -1.0, 1.0)

@@ -105,10 +105,10 @@ def test_injected_products_are_recovered(dbc, phases, seed):
 @pytest.mark.parametrize("a3", [-0.2, 0.2])
 def test_cubic_nonlinearity_gives_the_textbook_imd3(a3):
     # y = x + a3*x**3 with x = A cos w1 t + A cos w2 t. Standard two-tone result (any RF text on
-    # IP3, e.g. Razavi, RF Microelectronics, ch. 2): each IMD3 product has amplitude
-    # (3/4)*a3*A**3 and each fundamental becomes A + (9/4)*a3*A**3. The cubic makes no 5th or
-    # higher-order products, and its 3rd harmonics / 2f1+f2 (3000..3600 Hz) miss every place
-    # measured here (200..2000 Hz).
+    # IP3, e.g. Razavi, RF Microelectronics, chapter on nonlinearity; from memory): each IMD3
+    # product has amplitude (3/4)*a3*A**3 and each fundamental becomes A + (9/4)*a3*A**3.
+    # The cubic makes no 5th or higher-order products, and its 3rd harmonics / 2f1+f2
+    # (3000..3600 Hz) miss every place measured here (200..2000 Hz).
     A = 0.25
     f1, f2 = 1000.0, 1200.0
     t = np.arange(RATE) / RATE

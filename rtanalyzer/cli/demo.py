@@ -18,7 +18,7 @@ def add_parser(subparsers) -> None:
     p.add_argument("--phase-trim-deg", type=float, default=None, help="bench phase trim (default: the rig's)")
     p.add_argument("--amplitude-trim-db", type=float, default=None, help="bench amplitude trim")
     p.add_argument("--seconds", type=float, default=2.0, help="length of each simulated capture")
-    p.set_defaults(func=run)
+    p.set_defaults(shows_cautions=True, func=run)
 
 
 def _line(label: str, measured: float | None, truth: float | None, bound: str = "") -> str:

@@ -103,7 +103,7 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
     where.add_argument("--device", metavar="DEV", help="play on sound card DEV (number or part of its name)")
     p.add_argument("--subtype", choices=("PCM_16", "PCM_24", "FLOAT"), default=None,
                    help="sample format of --out (default PCM_24)")
-    p.set_defaults(func=run)
+    p.set_defaults(shows_cautions=True, func=run)
     return p
 
 

@@ -57,7 +57,7 @@ def add_parser(subparsers) -> None:
     p.add_argument("--seconds", type=float, default=None, help="stop after this long (default: until Ctrl-C)")
     p.add_argument("--jsonl", action="store_true", help="one JSON object per readout")
     add_knob_options(p)
-    p.set_defaults(func=run)
+    p.set_defaults(shows_cautions=True, func=run)
 
 
 def device_present() -> tuple[bool, str]:

@@ -20,6 +20,7 @@ COMMAND_MODULES = (
     "rtanalyzer.cli.measurements",
     "rtanalyzer.cli.cautions",
     "rtanalyzer.cli.generate",
+    "rtanalyzer.cli.devices",
 )
 
 
@@ -48,9 +49,12 @@ def build_parser() -> argparse.ArgumentParser:
 def main(argv: list[str] | None = None) -> int:
     try:
         args = build_parser().parse_args(argv)
-        from rtanalyzer.cli.cautions import show_first_run_notice
+        if getattr(args, "shows_cautions", False):
+            from rtanalyzer.cli.cautions import show_first_run_notice
 
-        show_first_run_notice(sys.stderr)  # once per user; stderr keeps --json output clean
+            # Once per user, before the first command that drives or listens to a rig;
+            # stderr keeps --json/--jsonl output clean.
+            show_first_run_notice(sys.stderr)
         return int(args.func(args) or 0)
     except RtaError as exc:
         print(f"rtanalyzer: error: {exc}", file=sys.stderr)

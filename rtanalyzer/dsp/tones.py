@@ -66,27 +66,29 @@ def refine_peak(spectrum: Spectrum, k0: int) -> ToneEstimate:
     return ToneEstimate(spectrum.frequency(position), float((mid / gain) ** 2), position)
 
 
-def peak_bin(spectrum: Spectrum, f_lo_hz: float, f_hi_hz: float) -> int | None:
-    """Index of the strongest local maximum between two frequencies, or None if there is none.
+def local_peaks(spectrum: Spectrum, f_lo_hz: float, f_hi_hz: float) -> np.ndarray:
+    """Bins between two frequencies that are at least as high as both neighbours, strongest first.
 
-    Only a bin at least as high as both neighbours counts, so the skirt of a strong tone just
-    outside the range is not mistaken for a tone inside it.
+    Only such bins count as tones, so the skirt of a strong tone just outside the range is
+    not mistaken for a tone inside it.
     """
     a = int(np.ceil(f_lo_hz / spectrum.bin_hz))
     b = int(np.floor(f_hi_hz / spectrum.bin_hz))
     if b < a:
-        return None
+        return np.array([], dtype=int)
     k = np.arange(a, b + 1)
     if not spectrum.is_complex:
         k = k[(k >= 1) & (k < len(spectrum.power) - 1)]
-        if k.size == 0:
-            return None
     p = spectrum.bins(k)
     peaks = (p >= spectrum.bins(k - 1)) & (p >= spectrum.bins(k + 1)) & (p > 0)
-    if not np.any(peaks):
-        return None
-    candidates = k[peaks]
-    return int(candidates[int(np.argmax(p[peaks]))])
+    order = np.argsort(p[peaks])[::-1]
+    return k[peaks][order]
+
+
+def peak_bin(spectrum: Spectrum, f_lo_hz: float, f_hi_hz: float) -> int | None:
+    """Index of the strongest local maximum between two frequencies, or None if there is none."""
+    peaks = local_peaks(spectrum, f_lo_hz, f_hi_hz)
+    return int(peaks[0]) if peaks.size else None
 
 
 def locate_tone(spectrum: Spectrum, f_lo_hz: float, f_hi_hz: float) -> ToneEstimate | None:

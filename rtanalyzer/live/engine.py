@@ -42,6 +42,7 @@ def live_nfft(rate_hz: float, resolution_hz: float | None = None) -> int:
 class Readout:
     """One live readout: the measurement's JSON figures (or why there are none) and the meters."""
 
+    measurement: str
     t: float  # time.monotonic() when it was made
     frame: int  # absolute index of the frame just past the analysed window
     result: dict[str, Any] | None
@@ -55,7 +56,7 @@ class Readout:
 
     def as_json(self) -> dict[str, Any]:
         """Flat JSON: the measurement's keys, plus time, levels, xruns and the engine's state."""
-        out: dict[str, Any] = {"t": round(self.t, 4)}
+        out: dict[str, Any] = {"t": round(self.t, 4), "measurement": self.measurement}
         if self.result is not None:
             out.update(self.result)
         out.update(
@@ -228,13 +229,13 @@ class LiveEngine:
         state = self.source.state
         xruns = self.source.counters.as_dict()
         if window is None:
-            return Readout(time.monotonic(), end, None, "waiting for audio", self.meters.as_dict(), xruns, state)
+            return Readout(self.measurement.name, time.monotonic(), end, None, "waiting for audio", self.meters.as_dict(), xruns, state)
         settings, sweep, usable = self._drive_settings(end)
         if sweep is not None and sweep["step"] != self._last_step:
             self.spectrum.reset()  # a new step: do not average across tones
             self._last_step = sweep["step"]
         if not usable:
-            return Readout(time.monotonic(), end, None, "settling", self.meters.as_dict(), xruns, state, sweep=sweep)
+            return Readout(self.measurement.name, time.monotonic(), end, None, "settling", self.meters.as_dict(), xruns, state, sweep=sweep)
         signal = self._signal(window)
         hop = end - self._last_window_end if self._last_window_end is not None else None
         self._last_window_end = end
@@ -250,6 +251,7 @@ class LiveEngine:
             self.best.update(result)
         finished = time.perf_counter()
         return Readout(
+            self.measurement.name,
             time.monotonic(),
             end,
             result,

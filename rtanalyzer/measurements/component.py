@@ -58,13 +58,13 @@ def spectrum_of(signal: Signal, resolution_hz: float = 1.0) -> Spectrum:
     """The averaged spectrum a measurement reads; unusable captures become one-line errors."""
     x = signal.samples
     if not np.any(x):
-        raise CaptureError(f"{signal.label}: the capture is digital silence (every sample is zero)")
+        raise CaptureError(f"{signal.where}: the capture is digital silence (every sample is zero)")
     if not (resolution_hz > 0 and np.isfinite(resolution_hz)):
         raise CaptureError(f"resolution {resolution_hz} Hz: must be a positive number of Hz")
     try:
         return averaged_spectrum(x, signal.rate_hz, choose_nfft(len(x), signal.rate_hz, resolution_hz))
     except ValueError as exc:
-        raise CaptureError(f"{signal.label}: {exc}") from None
+        raise CaptureError(f"{signal.where}: {exc}") from None
 
 
 def plan_floor(spectrum: Spectrum, positions: tuple[float, ...]) -> NoiseFloor:

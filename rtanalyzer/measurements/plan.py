@@ -15,8 +15,9 @@ import numpy as np
 
 from rtanalyzer.dsp.noise import MAIN_LOBE_BINS, local_noise
 from rtanalyzer.dsp.spectrum import Spectrum
-from rtanalyzer.dsp.tones import ToneEstimate, locate_tone
+from rtanalyzer.dsp.tones import ToneEstimate, local_peaks, locate_tone, refine_peak
 from rtanalyzer.errors import PlanError
+from rtanalyzer.measurements.hum import is_hum, mains_line
 
 SEARCH_HZ = 50.0
 # Below this a real capture holds DC and mains hum, not test tones.
@@ -182,13 +183,18 @@ def strongest_tone(spectrum: Spectrum) -> ToneEstimate:
     """The strongest tone in the capture, leaving out DC and mains hum."""
     g = max(guard_hz(spectrum), LOW_EDGE_HZ)
     edge = spectrum.nyquist_hz - guard_hz(spectrum)
-    candidates = [locate_tone(spectrum, g, edge)]
-    if spectrum.is_complex:
-        candidates.append(locate_tone(spectrum, -edge, -g))
-    candidates = [c for c in candidates if c is not None]
-    if not candidates:
-        raise PlanError("the capture has no frequency range left to search for a tone")
-    best = max(candidates, key=lambda c: c.power)
+    mains = mains_line(spectrum)
+    ranges = [(g, edge), (-edge, -g)] if spectrum.is_complex else [(g, edge)]
+    best = None
+    for lo, hi in ranges:
+        for k in local_peaks(spectrum, lo, hi):
+            found = refine_peak(spectrum, int(k))
+            if not is_hum(found.frequency_hz, mains, spectrum):
+                if best is None or found.power > best.power:
+                    best = found
+                break  # peaks come strongest first
+    if best is None:
+        raise PlanError("the capture has no tone outside DC and mains hum")
     if not _detected(spectrum, best):
         raise PlanError("no tone stands above the noise anywhere in the capture")
     return best

@@ -36,6 +36,12 @@ class Signal:
     rate_hz: float
     clipped: bool = False
     label: str = "channel 1"
+    source: str = ""  # the file or device it came from, for messages
+
+    @property
+    def where(self) -> str:
+        """Source and view, for one-line messages: ``"take3.wav, channel 2"``."""
+        return f"{self.source}, {self.label}" if self.source else self.label
 
     @property
     def is_complex(self) -> bool:
@@ -76,7 +82,9 @@ class Capture:
             )
         if not np.all(np.isfinite(data)):
             bad = int(np.count_nonzero(~np.isfinite(data)))
-            raise CaptureError(f"{self.source}: {bad} samples are NaN or infinite; the capture is unusable")
+            raise CaptureError(
+                f"{self.source}: {bad} sample{'s are' if bad != 1 else ' is'} NaN or infinite; the capture is unusable"
+            )
         object.__setattr__(self, "samples", data)
         if not self.clipped:
             object.__setattr__(self, "clipped", clipped_channels(data, self.full_scale_lsb))
@@ -115,7 +123,7 @@ class Capture:
                 )
             # (frames, 2) float64 in C order is already I, Q interleaved: view it as complex.
             z = np.ascontiguousarray(self.samples[:, :2]).view(np.complex128)[:, 0]
-            return Signal(z, self.rate_hz, bool(self.clipped[0] or self.clipped[1]), "I/Q (1=I, 2=Q)")
+            return Signal(z, self.rate_hz, bool(self.clipped[0] or self.clipped[1]), "I/Q (1=I, 2=Q)", self.source)
         number = 1 if channel is None else int(channel)
         if not 1 <= number <= self.channels:
             raise CaptureError(
@@ -127,4 +135,5 @@ class Capture:
             self.rate_hz,
             bool(self.clipped[number - 1]),
             f"channel {number}",
+            self.source,
         )

@@ -1,0 +1,513 @@
+"""The sound-card source with a fake PortAudio: callback copies, underflows, mute, device loss, errors.
+
+No sound card or PortAudio is needed: ``soundcard._sounddevice`` is replaced by a stand-in
+module and streams come from a fake factory whose callback the test calls by hand (or from a
+thread, for the device-loss tests).
+"""
+
+from __future__ import annotations
+
+import builtins
+import sys
+import threading
+import time
+import tracemalloc
+from types import SimpleNamespace
+
+import numpy as np
+import pytest
+
+from rtanalyzer.generator import Generator, Sweep, Tone
+from rtanalyzer.sources import soundcard
+from rtanalyzer.sources.soundcard import (
+    LEAD_BLOCKS,
+    LOST_STATE,
+    MISSING_PORTAUDIO,
+    SoundCardError,
+    SoundCardSource,
+    find_device,
+)
+
+RATE = 48000
+BLOCK = 256
+
+
+class FakePortAudioError(Exception):
+    pass
+
+
+class FakeSd:
+    """The parts of sounddevice the source uses, over a fixed device list."""
+
+    PortAudioError = FakePortAudioError
+
+    def __init__(self, devices, default=(0, 0)):
+        self.devices = [
+            {"index": i, "name": name, "hostapi": 0, "max_input_channels": ins, "max_output_channels": outs,
+             "default_samplerate": 48000.0, "rates": rates}
+            for i, (name, ins, outs, rates) in enumerate(devices)
+        ]
+        self.default = SimpleNamespace(device=default)
+
+    def query_devices(self):
+        return [dict(d) for d in self.devices]
+
+    def query_hostapis(self, index):
+        return {"name": "Fake API"}
+
+    def _check(self, key, device, channels, samplerate, dtype):
+        d = self.devices[device]
+        if channels > d[key] or samplerate not in d["rates"]:
+            raise FakePortAudioError("Invalid sample rate or channel count")
+
+    def check_input_settings(self, device=None, channels=None, samplerate=None, dtype=None):
+        self._check("max_input_channels", device, channels, samplerate, dtype)
+
+    def check_output_settings(self, device=None, channels=None, samplerate=None, dtype=None):
+        self._check("max_output_channels", device, channels, samplerate, dtype)
+
+
+ALL_RATES = (44100, 48000, 96000, 192000)
+DEVICES = [
+    ("USB Audio CODEC", 2, 2, (44100, 48000)),
+    ("USB Audio Device", 1, 0, ALL_RATES),
+    ("pulse", 32, 32, ALL_RATES),
+    ("pulse monitor", 2, 0, ALL_RATES),
+    ("HDMI out", 0, 8, ALL_RATES),
+]
+
+
+class FakeStream:
+    """A stream whose callback the test (or a pump thread) calls."""
+
+    latency = (0.01, 0.02)  # 480 + 960 = 1440 frames at 48 kHz
+
+    def __init__(self, **kwargs):
+        self.kwargs = kwargs
+        self.active = False
+        self.closed = False
+        channels = kwargs["channels"]
+        self.in_ch, self.out_ch = channels if isinstance(channels, tuple) else (channels, 0)
+        self.duplex = isinstance(channels, tuple)
+
+    def start(self):
+        self.active = True
+
+    def close(self):
+        self.active = False
+        self.closed = True
+
+    def pump(self, indata=None, status=None, frames=BLOCK):
+        """One callback; returns the output block the source filled."""
+        if indata is None:
+            indata = np.zeros((frames, self.in_ch), dtype=np.float32)
+        status = status or FakeStatus()
+        if not self.duplex:
+            self.kwargs["callback"](indata, frames, None, status)
+            return None
+        out = np.full((frames, self.out_ch), np.nan, dtype=np.float32)  # must be overwritten
+        self.kwargs["callback"](indata, out, frames, None, status)
+        return out
+
+
+class FakeStatus:
+    def __init__(self, input_overflow=False, output_underflow=False):
+        self.input_overflow = input_overflow
+        self.output_underflow = output_underflow
+
+    def __bool__(self):
+        return self.input_overflow or self.output_underflow
+
+
+class Factory:
+    """Makes FakeStreams; raises FakePortAudioError while ``available`` is False."""
+
+    def __init__(self, stream_class=FakeStream):
+        self.streams: list[FakeStream] = []
+        self.available = True
+        self.attempts = 0
+        self.stream_class = stream_class
+
+    def __call__(self, **kwargs):
+        self.attempts += 1
+        if not self.available:
+            raise FakePortAudioError("Error opening Stream: Device unavailable [PaErrorCode -9985]")
+        stream = self.stream_class(**kwargs)
+        self.streams.append(stream)
+        return stream
+
+
+@pytest.fixture
+def fake_sd(monkeypatch):
+    sd = FakeSd(DEVICES, default=(2, 2))
+    monkeypatch.setattr(soundcard, "_sounddevice", lambda: sd)
+    return sd
+
+
+@pytest.fixture
+def running():
+    """Sources started in a test, stopped afterwards whatever happens."""
+    started = []
+    yield started
+    for source in started:
+        source.stop(1.0)
+
+
+def start(source, running):
+    running.append(source)
+    source.start()
+    return source
+
+
+def wait_for(predicate, timeout=5.0):
+    deadline = time.monotonic() + timeout
+    while time.monotonic() < deadline:
+        if predicate():
+            return True
+        time.sleep(0.01)
+    return False
+
+
+# -- the callback -------------------------------------------------------------------------------
+
+
+def test_input_callback_copies_into_the_ring(fake_sd, running):
+    factory = Factory()
+    source = start(SoundCardSource("USB Audio CODEC", rate_hz=RATE, channels=2, block=BLOCK,
+                                   stream_factory=factory), running)
+    stream = factory.streams[0]
+    assert stream.kwargs["device"] == 0 and stream.kwargs["channels"] == 2
+    block = np.random.default_rng(1).standard_normal((BLOCK, 2)).astype(np.float32)
+    stream.pump(block)
+    stream.pump(2 * block)
+    np.testing.assert_array_equal(source.ring.read(0, BLOCK), block)
+    np.testing.assert_array_equal(source.ring.read(BLOCK, BLOCK), 2 * block)
+    assert source.state == "running"
+
+
+def test_duplex_callback_plays_the_generator_and_captures(fake_sd, running):
+    factory = Factory()
+    gen = Generator(Tone(1000.0, -6.0), RATE)
+    source = start(SoundCardSource("pulse", "pulse", RATE, 1, BLOCK, gen, stream_factory=factory), running)
+    stream = factory.streams[0]
+    assert stream.kwargs["device"] == (2, 2) and stream.kwargs["channels"] == (1, 1)
+    reference = Generator(Tone(1000.0, -6.0), RATE).render(8 * BLOCK).astype(np.float32)
+    captured = np.random.default_rng(2).standard_normal((BLOCK, 1)).astype(np.float32)
+    played = []
+    for _ in range(8):  # twice the lead: the producer thread must top up meanwhile
+        assert wait_for(lambda: source._out_ring.written - source._played >= BLOCK)
+        played.append(stream.pump(captured))
+    # block-wise rendering equals one long render to rounding (the generator's promise)
+    np.testing.assert_allclose(np.concatenate(played), reference, rtol=0, atol=1e-6)
+    np.testing.assert_array_equal(source.ring.read(7 * BLOCK, BLOCK), captured)
+    assert source.counters.as_dict() == {"input_overflows": 0, "output_underflows": 0, "dropped_blocks": 0}
+
+
+def test_callback_allocates_no_sample_arrays(fake_sd, running):
+    factory = Factory()
+    source = start(SoundCardSource("pulse", "pulse", RATE, 2, 1024, Generator(Tone(1000.0, -6.0), RATE, 2),
+                                   stream_factory=factory), running)
+    stream = factory.streams[0]
+    indata = np.zeros((1024, 2), dtype=np.float32)
+    outdata = np.zeros((1024, 2), dtype=np.float32)
+    status = FakeStatus()
+    callback = stream.kwargs["callback"]
+    source.stop(1.0)  # no producer running: the ring just runs dry, which the callback must handle too
+    source._out_ring.write(np.zeros((LEAD_BLOCKS * 1024, 2)))
+    tracemalloc.start()
+    try:
+        before = tracemalloc.get_traced_memory()[0]
+        tracemalloc.reset_peak()
+        for _ in range(LEAD_BLOCKS + 4):
+            callback(indata, outdata, 1024, None, status)
+        peak = tracemalloc.get_traced_memory()[1] - before
+    finally:
+        tracemalloc.stop()
+    assert peak < 2048, f"the callback allocated {peak} bytes (one block is {indata.nbytes})"
+
+
+def test_status_flags_are_counted(fake_sd, running):
+    factory = Factory()
+    source = start(SoundCardSource("pulse", "pulse", RATE, 1, BLOCK, Generator(Tone(1000.0, -6.0), RATE),
+                                   stream_factory=factory), running)
+    stream = factory.streams[0]
+    stream.pump(status=FakeStatus(input_overflow=True))
+    stream.pump(status=FakeStatus(output_underflow=True))
+    stream.pump(status=FakeStatus(input_overflow=True, output_underflow=True))
+    assert source.counters.input_overflows == 2
+    assert source.counters.output_underflows == 2
+
+
+class StallingGenerator(Generator):
+    """Renders its first ``allowed`` blocks, then blocks in render_into until released."""
+
+    def __init__(self, *args, allowed, **kwargs):
+        super().__init__(*args, **kwargs)
+        self.allowed = allowed
+        self.release = threading.Event()
+
+    def render_into(self, out):
+        if self.allowed <= 0:
+            self.release.wait(10.0)
+        self.allowed -= 1
+        super().render_into(out)
+
+
+def test_an_empty_output_ring_plays_zeros_and_counts_an_underflow(fake_sd, running):
+    factory = Factory()
+    gen = StallingGenerator(Tone(1000.0, -6.0), RATE, allowed=LEAD_BLOCKS)
+    source = start(SoundCardSource("pulse", "pulse", RATE, 1, BLOCK, gen, stream_factory=factory), running)
+    try:
+        stream = factory.streams[0]
+        outs = [stream.pump() for _ in range(LEAD_BLOCKS + 2)]
+        assert all(np.abs(o).max() > 0.1 for o in outs[1:LEAD_BLOCKS])
+        assert all(np.all(o == 0.0) for o in outs[LEAD_BLOCKS:])
+        assert source.counters.output_underflows == 2
+        assert source.ring.written == (LEAD_BLOCKS + 2) * BLOCK  # capture goes on regardless
+    finally:
+        gen.release.set()
+
+
+def test_mute_plays_zeros_at_once_and_time_runs_on(fake_sd, running):
+    factory = Factory()
+    gen = Generator(Tone(1000.0, -6.0), RATE)
+    source = start(SoundCardSource("pulse", "pulse", RATE, 1, BLOCK, gen, stream_factory=factory), running)
+    stream = factory.streams[0]
+    reference = Generator(Tone(1000.0, -6.0), RATE).render(3 * BLOCK).astype(np.float32)
+    first = stream.pump()
+    source.mute()
+    assert source.muted
+    assert np.all(stream.pump() == 0.0)
+    source.unmute()
+    assert wait_for(lambda: source._out_ring.written - source._played >= BLOCK)
+    third = stream.pump()
+    np.testing.assert_allclose(first, reference[:BLOCK], rtol=0, atol=1e-6)
+    np.testing.assert_allclose(third, reference[2 * BLOCK:], rtol=0, atol=1e-6)  # the muted block was skipped, not delayed
+    assert source.counters.output_underflows == 0
+
+
+def test_drive_at_maps_captured_frames_through_the_latency(fake_sd, running):
+    factory = Factory()
+    gen = Generator(Tone(1000.0, -6.0), RATE, ramp_s=0.01)  # 480 frames of fade-in
+    source = start(SoundCardSource("pulse", "pulse", RATE, 1, BLOCK, gen, stream_factory=factory), running)
+    assert source.drive_at(0) is None  # no callback yet: the offset is unknown
+    factory.streams[0].pump()
+    latency = 1440  # (0.01 + 0.02) s at 48 kHz, the fake's reported latency
+    assert source.drive_at(latency - 1) is None  # the first played sample has not come back yet
+    assert source.drive_at(latency + 100) == soundcard.Drive((1000.0,), False, None)  # still fading in
+    assert source.drive_at(latency + 480) == soundcard.Drive((1000.0,), True, None)
+
+
+def test_drive_at_follows_a_sweep(fake_sd, running):
+    factory = Factory()
+    sweep = Sweep((500.0, 1000.0, 1500.0), -6.0, dwell_s=0.1, settle_s=0.02)
+    gen = Generator(sweep, RATE)
+    source = start(SoundCardSource("pulse", "pulse", RATE, 1, BLOCK, gen, stream_factory=factory), running)
+    factory.streams[0].pump()
+    step_len = int(0.1 * RATE)
+    drive = source.drive_at(1440 + step_len + 10)
+    assert drive.step == 1 and not drive.settled
+    assert drive.tones_hz[0] == pytest.approx(gen.step_at(step_len + 10)[1])
+    assert source.drive_at(1440 + step_len + int(0.05 * RATE)).settled
+
+
+def test_input_only_has_no_drive(fake_sd, running):
+    factory = Factory()
+    source = start(SoundCardSource("pulse", rate_hz=RATE, stream_factory=factory), running)
+    factory.streams[0].pump()
+    assert source.drive_at(10_000) is None
+    assert source.output_channels == 0
+
+
+# -- device loss ----------------------------------------------------------------------------------
+
+
+class PumpedStream(FakeStream):
+    """Calls back every 2 ms from its own thread, like PortAudio, until it vanishes."""
+
+    def start(self):
+        super().start()
+        self._running = True
+        self._thread = threading.Thread(target=self._run, daemon=True)
+        self._thread.start()
+
+    def _run(self):
+        while self._running:
+            self.pump()
+            time.sleep(0.002)
+
+    def vanish(self, finish=True):
+        """The device goes away: callbacks stop; PortAudio may or may not report the end."""
+        self._running = False
+        self._thread.join(1.0)
+        if finish:
+            self.active = False
+            self.kwargs["finished_callback"]()
+
+    def close(self):
+        self._running = False
+        super().close()
+
+
+@pytest.mark.parametrize("finish", [True, False], ids=["stream-ended", "callbacks-stopped"])
+def test_a_lost_device_is_retried_and_resumes(fake_sd, running, monkeypatch, finish):
+    monkeypatch.setattr(SoundCardSource, "STALL_S", 0.3)
+    factory = Factory(PumpedStream)
+    gen = Generator(Tone(1000.0, -6.0), RATE)
+    source = start(SoundCardSource("pulse", "pulse", RATE, 1, BLOCK, gen, stream_factory=factory,
+                                   retry_s=0.2), running)
+    assert wait_for(lambda: source.ring.written > 20 * BLOCK)
+    factory.available = False
+    factory.streams[0].vanish(finish)
+    assert wait_for(lambda: source.state == LOST_STATE)
+    assert source.outages == 1 and factory.streams[0].closed
+    attempts = factory.attempts
+    assert wait_for(lambda: factory.attempts >= attempts + 2)  # it keeps trying, about every retry_s
+    frozen = source.ring.written
+    factory.available = True
+    assert wait_for(lambda: source.state == "running")
+    assert len(factory.streams) == 2 and source.outages == 1 and source.lost_s > 0.3
+    assert wait_for(lambda: source.ring.written > frozen + 20 * BLOCK)  # captures again
+    assert "1 outage" in source.describe()
+
+
+def test_retry_interval_is_respected(fake_sd, running, monkeypatch):
+    factory = Factory(PumpedStream)
+    source = start(SoundCardSource("pulse", rate_hz=RATE, stream_factory=factory, retry_s=0.25), running)
+    assert wait_for(lambda: source.ring.written > 0)
+    factory.available = False
+    factory.streams[0].vanish()
+    assert wait_for(lambda: source.state == LOST_STATE)
+    first = factory.attempts
+    time.sleep(1.0)
+    assert 2 <= factory.attempts - first <= 5  # about one try per 0.25 s, not a busy loop
+
+
+# -- devices and settings -------------------------------------------------------------------------
+
+
+def test_device_by_index_name_part_and_exact_name(fake_sd):
+    assert find_device(fake_sd, 1, "input")["name"] == "USB Audio Device"
+    assert find_device(fake_sd, "1", "input")["name"] == "USB Audio Device"
+    assert find_device(fake_sd, "codec", "input")["index"] == 0
+    assert find_device(fake_sd, "pulse", "input")["index"] == 2  # exact beats 'pulse monitor'
+    assert find_device(fake_sd, "hdmi", "output")["index"] == 4
+    assert find_device(fake_sd, None, "output")["index"] == 2
+
+
+def test_an_ambiguous_name_lists_the_candidates_with_indices(fake_sd):
+    with pytest.raises(SoundCardError) as err:
+        find_device(fake_sd, "usb audio", "input")
+    message = str(err.value)
+    assert "ambiguous" in message and "0 'USB Audio CODEC'" in message and "1 'USB Audio Device'" in message
+    assert "\n" not in message
+
+
+def test_no_match_lists_every_device_of_that_kind(fake_sd):
+    with pytest.raises(SoundCardError, match=r"no output device matches 'usb device'.*2 'pulse', 4 'HDMI out'"):
+        SoundCardSource("pulse", "usb device", RATE, renderer=Generator(Tone(1000.0, -6.0), RATE),
+                        stream_factory=Factory())
+    with pytest.raises(SoundCardError, match=r"no input device 4;"):
+        SoundCardSource(4, stream_factory=Factory())
+
+
+@pytest.mark.parametrize("rate", [22050, 32000, 48000.5, True])
+def test_a_rate_outside_the_list_is_one_line(fake_sd, rate):
+    with pytest.raises(SoundCardError) as err:
+        SoundCardSource("pulse", rate_hz=rate, stream_factory=Factory())
+    assert str(err.value) == f"sample rate {rate!r} Hz is not allowed; allowed: 44100, 48000, 96000, 192000 Hz"
+
+
+def test_a_rate_the_device_lacks_names_what_it_offers(fake_sd):
+    with pytest.raises(SoundCardError) as err:
+        SoundCardSource("codec", rate_hz=192000, channels=2, stream_factory=Factory())
+    assert str(err.value) == (
+        "device 'USB Audio CODEC' cannot record 2 channels at 192000 Hz; "
+        "it offers up to 2 input channels at 44100, 48000 Hz"
+    )
+
+
+def test_too_many_channels_is_one_line(fake_sd):
+    with pytest.raises(SoundCardError, match=r"^device 'USB Audio Device' cannot record 2 channels at 48000 Hz; "
+                                             r"it offers up to 1 input channel at 44100, 48000, 96000, 192000 Hz$"):
+        SoundCardSource("usb audio device", channels=2, stream_factory=Factory())
+    with pytest.raises(SoundCardError, match="input channels = 3 is not allowed; allowed: 1 or 2"):
+        SoundCardSource("pulse", channels=3, stream_factory=Factory())
+
+
+def test_a_busy_device_is_one_line_from_start(fake_sd):
+    factory = Factory()
+    factory.available = False
+    source = SoundCardSource("pulse", stream_factory=factory)
+    with pytest.raises(SoundCardError) as err:
+        source.start()
+    assert str(err.value) == ("cannot open sound card 'pulse' at 48000 Hz: Error opening Stream: Device "
+                              "unavailable [PaErrorCode -9985] (is another program using it?)")
+
+
+def test_renderer_rate_must_match(fake_sd):
+    with pytest.raises(SoundCardError, match="renderer runs at 44100 Hz, the sound card at 48000 Hz"):
+        SoundCardSource("pulse", "pulse", 48000, renderer=Generator(Tone(1000.0, -6.0), 44100),
+                        stream_factory=Factory())
+
+
+# -- PortAudio missing ----------------------------------------------------------------------------
+
+
+def test_sounddevice_not_installed_is_one_line(monkeypatch):
+    monkeypatch.setitem(sys.modules, "sounddevice", None)  # makes `import sounddevice` raise ImportError
+    with pytest.raises(SoundCardError) as err:
+        SoundCardSource("pulse")
+    assert str(err.value) == MISSING_PORTAUDIO
+
+
+def test_portaudio_library_missing_is_one_line(monkeypatch):
+    real_import = builtins.__import__
+
+    def no_portaudio(name, *args, **kwargs):
+        if name == "sounddevice":
+            raise OSError("PortAudio library not found")
+        return real_import(name, *args, **kwargs)
+
+    monkeypatch.delitem(sys.modules, "sounddevice", raising=False)
+    monkeypatch.setattr(builtins, "__import__", no_portaudio)
+    with pytest.raises(SoundCardError) as err:
+        soundcard.list_devices()
+    assert str(err.value) == "PortAudio is missing: apt-get install libportaudio2 (and pip install sounddevice)"
+
+
+# -- rtanalyzer devices ---------------------------------------------------------------------------
+
+
+def test_devices_command_lists_and_marks_defaults(fake_sd, capsys, cautions_already_shown):
+    from rtanalyzer.cli.main import main
+
+    assert main(["devices"]) == 0
+    lines = capsys.readouterr().out.splitlines()
+    assert lines[0].split()[:4] == ["in", "out", "index", "name"]
+    pulse = next(line for line in lines if " pulse " in line)
+    assert pulse.split()[:8] == ["*", "*", "2", "pulse", "Fake", "API", "32", "32"]
+    assert pulse.endswith("48000 Hz")
+    assert len([line for line in lines if "USB Audio" in line]) == 2
+
+
+def test_devices_command_json(fake_sd, capsys, cautions_already_shown):
+    import json
+
+    from rtanalyzer.cli.main import main
+
+    assert main(["devices", "--json"]) == 0
+    devices = json.loads(capsys.readouterr().out)
+    assert [d["name"] for d in devices] == [name for name, *_ in DEVICES]
+    assert devices[2]["default_input"] and devices[2]["default_output"]
+    assert devices[4] == {"index": 4, "name": "HDMI out", "hostapi": "Fake API", "max_input_channels": 0,
+                          "max_output_channels": 8, "default_samplerate_hz": 48000.0,
+                          "default_input": False, "default_output": False}
+
+
+def test_devices_command_without_portaudio_is_one_line(monkeypatch, capsys, cautions_already_shown):
+    from rtanalyzer.cli.main import main
+
+    monkeypatch.setitem(sys.modules, "sounddevice", None)
+    assert main(["devices"]) == 2
+    assert capsys.readouterr().err == f"rtanalyzer: error: {MISSING_PORTAUDIO}\n"
