@@ -1,6 +1,6 @@
 """The package's layering, checked by reading the source (ast), not by importing it.
 
-Layers, lowest first: dsp -> sources, generator -> measurements -> store -> gui, cli.
+Layers, lowest first: dsp -> sources, generator -> measurements -> store, live -> gui, cli.
 ``rtanalyzer.errors`` sits below them all. A module may import its own layer and the ones
 below, never one above, not even inside a function. Qt, vispy and PortAudio stay out of
 everything but the GUI and the sound-card modules at import time.
@@ -26,6 +26,7 @@ RANK = {
     "generator": 2,
     "measurements": 3,
     "store": 4,
+    "live": 4,
     "gui": 5,
     "cli": 5,
 }

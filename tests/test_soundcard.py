@@ -1,7 +1,7 @@
 """The sound-card source with a fake PortAudio: callback copies, underflows, mute, device loss, errors.
 
-No sound card or PortAudio is needed: ``soundcard._sounddevice`` is replaced by a stand-in
-module and streams come from a fake factory whose callback the test calls by hand (or from a
+No sound card or PortAudio is needed: ``soundcard_devices.load_sounddevice`` returns a stand-in
+module and streams come from a fake factory whose callbacks the test calls by hand (or from a
 thread, for the device-loss tests).
 """
 
@@ -18,15 +18,10 @@ import numpy as np
 import pytest
 
 from rtanalyzer.generator import Generator, Sweep, Tone
-from rtanalyzer.sources import soundcard
-from rtanalyzer.sources.soundcard import (
-    LEAD_BLOCKS,
-    LOST_STATE,
-    MISSING_PORTAUDIO,
-    SoundCardError,
-    SoundCardSource,
-    find_device,
-)
+from rtanalyzer.sources import soundcard, soundcard_devices
+from rtanalyzer.sources.live import Drive
+from rtanalyzer.sources.soundcard import LEAD_BLOCKS, LOST_STATE, SoundCardSource
+from rtanalyzer.sources.soundcard_devices import MISSING_PORTAUDIO, SoundCardError, find_device
 
 RATE = 48000
 BLOCK = 256
@@ -78,17 +73,17 @@ DEVICES = [
 
 
 class FakeStream:
-    """A stream whose callback the test (or a pump thread) calls."""
+    """An input or output stream whose callback the test (or a pump thread) calls."""
 
-    latency = (0.01, 0.02)  # 480 + 960 = 1440 frames at 48 kHz
+    LATENCY_S = {"input": 0.01, "output": 0.02}  # 480 + 960 = 1440 frames at 48 kHz
 
-    def __init__(self, **kwargs):
+    def __init__(self, kind, **kwargs):
+        self.kind = kind
         self.kwargs = kwargs
+        self.latency = self.LATENCY_S[kind]
         self.active = False
         self.closed = False
-        channels = kwargs["channels"]
-        self.in_ch, self.out_ch = channels if isinstance(channels, tuple) else (channels, 0)
-        self.duplex = isinstance(channels, tuple)
+        self.channels = kwargs["channels"]
 
     def start(self):
         self.active = True
@@ -98,15 +93,15 @@ class FakeStream:
         self.closed = True
 
     def pump(self, indata=None, status=None, frames=BLOCK):
-        """One callback; returns the output block the source filled."""
-        if indata is None:
-            indata = np.zeros((frames, self.in_ch), dtype=np.float32)
+        """One callback; an output stream returns the block the source filled."""
         status = status or FakeStatus()
-        if not self.duplex:
+        if self.kind == "input":
+            if indata is None:
+                indata = np.zeros((frames, self.channels), dtype=np.float32)
             self.kwargs["callback"](indata, frames, None, status)
             return None
-        out = np.full((frames, self.out_ch), np.nan, dtype=np.float32)  # must be overwritten
-        self.kwargs["callback"](indata, out, frames, None, status)
+        out = np.full((frames, self.channels), np.nan, dtype=np.float32)  # must be overwritten
+        self.kwargs["callback"](out, frames, None, status)
         return out
 
 
@@ -128,19 +123,22 @@ class Factory:
         self.attempts = 0
         self.stream_class = stream_class
 
-    def __call__(self, **kwargs):
+    def __call__(self, kind, **kwargs):
         self.attempts += 1
         if not self.available:
             raise FakePortAudioError("Error opening Stream: Device unavailable [PaErrorCode -9985]")
-        stream = self.stream_class(**kwargs)
+        stream = self.stream_class(kind, **kwargs)
         self.streams.append(stream)
         return stream
+
+    def latest(self, kind):
+        return [s for s in self.streams if s.kind == kind][-1]
 
 
 @pytest.fixture
 def fake_sd(monkeypatch):
     sd = FakeSd(DEVICES, default=(2, 2))
-    monkeypatch.setattr(soundcard, "_sounddevice", lambda: sd)
+    monkeypatch.setattr(soundcard_devices, "load_sounddevice", lambda: sd)
     return sd
 
 
@@ -173,10 +171,12 @@ def wait_for(predicate, timeout=5.0):
 
 def test_input_callback_copies_into_the_ring(fake_sd, running):
     factory = Factory()
-    source = start(SoundCardSource("USB Audio CODEC", rate_hz=RATE, channels=2, block=BLOCK,
+    source = start(SoundCardSource("USB Audio CODEC", rate_hz=RATE, input_channels=2, block=BLOCK,
                                    stream_factory=factory), running)
-    stream = factory.streams[0]
+    assert [s.kind for s in factory.streams] == ["input"]  # no renderer: nothing to play
+    stream = factory.latest("input")
     assert stream.kwargs["device"] == 0 and stream.kwargs["channels"] == 2
+    assert stream.kwargs["samplerate"] == RATE and stream.kwargs["blocksize"] == BLOCK
     block = np.random.default_rng(1).standard_normal((BLOCK, 2)).astype(np.float32)
     stream.pump(block)
     stream.pump(2 * block)
@@ -185,57 +185,59 @@ def test_input_callback_copies_into_the_ring(fake_sd, running):
     assert source.state == "running"
 
 
-def test_duplex_callback_plays_the_generator_and_captures(fake_sd, running):
+def test_output_callback_plays_the_generator_while_input_captures(fake_sd, running):
     factory = Factory()
     gen = Generator(Tone(1000.0, -6.0), RATE)
     source = start(SoundCardSource("pulse", "pulse", RATE, 1, BLOCK, gen, stream_factory=factory), running)
-    stream = factory.streams[0]
-    assert stream.kwargs["device"] == (2, 2) and stream.kwargs["channels"] == (1, 1)
+    out, inp = factory.latest("output"), factory.latest("input")
+    assert (out.kwargs["device"], out.kwargs["channels"]) == (2, 1)
+    assert (inp.kwargs["device"], inp.kwargs["channels"]) == (2, 1)
     reference = Generator(Tone(1000.0, -6.0), RATE).render(8 * BLOCK).astype(np.float32)
     captured = np.random.default_rng(2).standard_normal((BLOCK, 1)).astype(np.float32)
     played = []
     for _ in range(8):  # twice the lead: the producer thread must top up meanwhile
         assert wait_for(lambda: source._out_ring.written - source._played >= BLOCK)
-        played.append(stream.pump(captured))
+        played.append(out.pump())
+        inp.pump(captured)
     # block-wise rendering equals one long render to rounding (the generator's promise)
     np.testing.assert_allclose(np.concatenate(played), reference, rtol=0, atol=1e-6)
     np.testing.assert_array_equal(source.ring.read(7 * BLOCK, BLOCK), captured)
     assert source.counters.as_dict() == {"input_overflows": 0, "output_underflows": 0, "dropped_blocks": 0}
 
 
-def test_callback_allocates_no_sample_arrays(fake_sd, running):
+def test_callbacks_allocate_no_sample_arrays(fake_sd, running):
     factory = Factory()
     source = start(SoundCardSource("pulse", "pulse", RATE, 2, 1024, Generator(Tone(1000.0, -6.0), RATE, 2),
                                    stream_factory=factory), running)
-    stream = factory.streams[0]
+    out_cb, in_cb = factory.latest("output").kwargs["callback"], factory.latest("input").kwargs["callback"]
+    source.stop(1.0)  # no producer: the output ring runs dry, which the callback must handle too
     indata = np.zeros((1024, 2), dtype=np.float32)
     outdata = np.zeros((1024, 2), dtype=np.float32)
     status = FakeStatus()
-    callback = stream.kwargs["callback"]
-    source.stop(1.0)  # no producer running: the ring just runs dry, which the callback must handle too
-    source._out_ring.write(np.zeros((LEAD_BLOCKS * 1024, 2)))
     tracemalloc.start()
     try:
         before = tracemalloc.get_traced_memory()[0]
         tracemalloc.reset_peak()
         for _ in range(LEAD_BLOCKS + 4):
-            callback(indata, outdata, 1024, None, status)
+            out_cb(outdata, 1024, None, status)
+            in_cb(indata, 1024, None, status)
         peak = tracemalloc.get_traced_memory()[1] - before
     finally:
         tracemalloc.stop()
-    assert peak < 2048, f"the callback allocated {peak} bytes (one block is {indata.nbytes})"
+    assert source.counters.output_underflows == 4
+    assert peak < 2048, f"the callbacks allocated {peak} bytes (one block is {indata.nbytes})"
 
 
 def test_status_flags_are_counted(fake_sd, running):
     factory = Factory()
     source = start(SoundCardSource("pulse", "pulse", RATE, 1, BLOCK, Generator(Tone(1000.0, -6.0), RATE),
                                    stream_factory=factory), running)
-    stream = factory.streams[0]
-    stream.pump(status=FakeStatus(input_overflow=True))
-    stream.pump(status=FakeStatus(output_underflow=True))
-    stream.pump(status=FakeStatus(input_overflow=True, output_underflow=True))
+    out, inp = factory.latest("output"), factory.latest("input")
+    inp.pump(status=FakeStatus(input_overflow=True))
+    inp.pump(status=FakeStatus(input_overflow=True))
+    out.pump(status=FakeStatus(output_underflow=True))
     assert source.counters.input_overflows == 2
-    assert source.counters.output_underflows == 2
+    assert source.counters.output_underflows == 1
 
 
 class StallingGenerator(Generator):
@@ -258,8 +260,11 @@ def test_an_empty_output_ring_plays_zeros_and_counts_an_underflow(fake_sd, runni
     gen = StallingGenerator(Tone(1000.0, -6.0), RATE, allowed=LEAD_BLOCKS)
     source = start(SoundCardSource("pulse", "pulse", RATE, 1, BLOCK, gen, stream_factory=factory), running)
     try:
-        stream = factory.streams[0]
-        outs = [stream.pump() for _ in range(LEAD_BLOCKS + 2)]
+        out, inp = factory.latest("output"), factory.latest("input")
+        outs = []
+        for _ in range(LEAD_BLOCKS + 2):
+            outs.append(out.pump())
+            inp.pump()
         assert all(np.abs(o).max() > 0.1 for o in outs[1:LEAD_BLOCKS])
         assert all(np.all(o == 0.0) for o in outs[LEAD_BLOCKS:])
         assert source.counters.output_underflows == 2
@@ -272,49 +277,61 @@ def test_mute_plays_zeros_at_once_and_time_runs_on(fake_sd, running):
     factory = Factory()
     gen = Generator(Tone(1000.0, -6.0), RATE)
     source = start(SoundCardSource("pulse", "pulse", RATE, 1, BLOCK, gen, stream_factory=factory), running)
-    stream = factory.streams[0]
+    out = factory.latest("output")
     reference = Generator(Tone(1000.0, -6.0), RATE).render(3 * BLOCK).astype(np.float32)
-    first = stream.pump()
+    first = out.pump()
     source.mute()
     assert source.muted
-    assert np.all(stream.pump() == 0.0)
+    assert np.all(out.pump() == 0.0)
     source.unmute()
     assert wait_for(lambda: source._out_ring.written - source._played >= BLOCK)
-    third = stream.pump()
+    third = out.pump()
     np.testing.assert_allclose(first, reference[:BLOCK], rtol=0, atol=1e-6)
-    np.testing.assert_allclose(third, reference[2 * BLOCK:], rtol=0, atol=1e-6)  # the muted block was skipped, not delayed
+    np.testing.assert_allclose(third, reference[2 * BLOCK:], rtol=0, atol=1e-6)  # skipped, not delayed
     assert source.counters.output_underflows == 0
 
 
-def test_drive_at_maps_captured_frames_through_the_latency(fake_sd, running):
+@pytest.fixture
+def clock(monkeypatch):
+    """The callbacks' clock, set by the test."""
+    now = [100.0]
+    monkeypatch.setattr(soundcard, "_now", lambda: now[0])
+    return now
+
+
+def test_drive_at_maps_captured_frames_through_clock_and_latency(fake_sd, running, clock):
     factory = Factory()
     gen = Generator(Tone(1000.0, -6.0), RATE, ramp_s=0.01)  # 480 frames of fade-in
     source = start(SoundCardSource("pulse", "pulse", RATE, 1, BLOCK, gen, stream_factory=factory), running)
-    assert source.drive_at(0) is None  # no callback yet: the offset is unknown
-    factory.streams[0].pump()
-    latency = 1440  # (0.01 + 0.02) s at 48 kHz, the fake's reported latency
-    assert source.drive_at(latency - 1) is None  # the first played sample has not come back yet
-    assert source.drive_at(latency + 100) == soundcard.Drive((1000.0,), False, None)  # still fading in
-    assert source.drive_at(latency + 480) == soundcard.Drive((1000.0,), True, None)
+    assert source.drive_at(0) is None  # no callback yet
+    factory.latest("output").pump()  # played frame 0 leaves the card 0.02 s after t = 100
+    factory.latest("input").pump()  # captured frame 0 was sampled 0.01 s before t = 100
+    # captured frame F was sampled at 100 - 0.01 + F/48000, when played frame F - 1440 left
+    assert source.drive_at(1439) is None  # the first played sample has not come back yet
+    assert source.drive_at(1440 + 100) == Drive((1000.0,), False, None)  # still fading in
+    assert source.drive_at(1440 + 480) == Drive((1000.0,), True, None)
+    clock[0] = 100.5  # the input started half a second after the output
+    factory.latest("input").pump()  # captured frames 256.. sampled from 100.49 s
+    assert source.drive_at(BLOCK) == Drive((1000.0,), True, None)
 
 
-def test_drive_at_follows_a_sweep(fake_sd, running):
+def test_drive_at_follows_a_sweep(fake_sd, running, clock):
     factory = Factory()
     sweep = Sweep((500.0, 1000.0, 1500.0), -6.0, dwell_s=0.1, settle_s=0.02)
     gen = Generator(sweep, RATE)
     source = start(SoundCardSource("pulse", "pulse", RATE, 1, BLOCK, gen, stream_factory=factory), running)
-    factory.streams[0].pump()
+    factory.latest("output").pump()
+    factory.latest("input").pump()
     step_len = int(0.1 * RATE)
     drive = source.drive_at(1440 + step_len + 10)
-    assert drive.step == 1 and not drive.settled
-    assert drive.tones_hz[0] == pytest.approx(gen.step_at(step_len + 10)[1])
-    assert source.drive_at(1440 + step_len + int(0.05 * RATE)).settled
+    assert drive.step == 1 and not drive.settled and drive.tones_hz == (1000.0,)
+    assert source.drive_at(1440 + step_len + int(0.05 * RATE)) == Drive((1000.0,), True, 1)
 
 
 def test_input_only_has_no_drive(fake_sd, running):
     factory = Factory()
     source = start(SoundCardSource("pulse", rate_hz=RATE, stream_factory=factory), running)
-    factory.streams[0].pump()
+    factory.latest("input").pump()
     assert source.drive_at(10_000) is None
     assert source.output_channels == 0
 
@@ -349,8 +366,9 @@ class PumpedStream(FakeStream):
         super().close()
 
 
+@pytest.mark.parametrize("kind", ["input", "output"])
 @pytest.mark.parametrize("finish", [True, False], ids=["stream-ended", "callbacks-stopped"])
-def test_a_lost_device_is_retried_and_resumes(fake_sd, running, monkeypatch, finish):
+def test_a_lost_device_is_retried_and_resumes(fake_sd, running, monkeypatch, finish, kind):
     monkeypatch.setattr(SoundCardSource, "STALL_S", 0.3)
     factory = Factory(PumpedStream)
     gen = Generator(Tone(1000.0, -6.0), RATE)
@@ -358,15 +376,17 @@ def test_a_lost_device_is_retried_and_resumes(fake_sd, running, monkeypatch, fin
                                    retry_s=0.2), running)
     assert wait_for(lambda: source.ring.written > 20 * BLOCK)
     factory.available = False
-    factory.streams[0].vanish(finish)
+    lost = factory.latest(kind)
+    lost.vanish(finish)
     assert wait_for(lambda: source.state == LOST_STATE)
-    assert source.outages == 1 and factory.streams[0].closed
+    assert wait_for(lambda: all(s.closed for s in factory.streams))  # both directions closed
+    assert source.outages == 1
     attempts = factory.attempts
     assert wait_for(lambda: factory.attempts >= attempts + 2)  # it keeps trying, about every retry_s
     frozen = source.ring.written
     factory.available = True
     assert wait_for(lambda: source.state == "running")
-    assert len(factory.streams) == 2 and source.outages == 1 and source.lost_s > 0.3
+    assert len(factory.streams) == 4 and source.outages == 1 and source.lost_s > 0.3
     assert wait_for(lambda: source.ring.written > frozen + 20 * BLOCK)  # captures again
     assert "1 outage" in source.describe()
 
@@ -376,7 +396,7 @@ def test_retry_interval_is_respected(fake_sd, running, monkeypatch):
     source = start(SoundCardSource("pulse", rate_hz=RATE, stream_factory=factory, retry_s=0.25), running)
     assert wait_for(lambda: source.ring.written > 0)
     factory.available = False
-    factory.streams[0].vanish()
+    factory.latest("input").vanish()
     assert wait_for(lambda: source.state == LOST_STATE)
     first = factory.attempts
     time.sleep(1.0)
@@ -420,7 +440,7 @@ def test_a_rate_outside_the_list_is_one_line(fake_sd, rate):
 
 def test_a_rate_the_device_lacks_names_what_it_offers(fake_sd):
     with pytest.raises(SoundCardError) as err:
-        SoundCardSource("codec", rate_hz=192000, channels=2, stream_factory=Factory())
+        SoundCardSource("codec", rate_hz=192000, input_channels=2, stream_factory=Factory())
     assert str(err.value) == (
         "device 'USB Audio CODEC' cannot record 2 channels at 192000 Hz; "
         "it offers up to 2 input channels at 44100, 48000 Hz"
@@ -430,9 +450,9 @@ def test_a_rate_the_device_lacks_names_what_it_offers(fake_sd):
 def test_too_many_channels_is_one_line(fake_sd):
     with pytest.raises(SoundCardError, match=r"^device 'USB Audio Device' cannot record 2 channels at 48000 Hz; "
                                              r"it offers up to 1 input channel at 44100, 48000, 96000, 192000 Hz$"):
-        SoundCardSource("usb audio device", channels=2, stream_factory=Factory())
+        SoundCardSource("usb audio device", input_channels=2, stream_factory=Factory())
     with pytest.raises(SoundCardError, match="input channels = 3 is not allowed; allowed: 1 or 2"):
-        SoundCardSource("pulse", channels=3, stream_factory=Factory())
+        SoundCardSource("pulse", input_channels=3, stream_factory=Factory())
 
 
 def test_a_busy_device_is_one_line_from_start(fake_sd):
@@ -472,7 +492,7 @@ def test_portaudio_library_missing_is_one_line(monkeypatch):
     monkeypatch.delitem(sys.modules, "sounddevice", raising=False)
     monkeypatch.setattr(builtins, "__import__", no_portaudio)
     with pytest.raises(SoundCardError) as err:
-        soundcard.list_devices()
+        soundcard_devices.list_devices()
     assert str(err.value) == "PortAudio is missing: apt-get install libportaudio2 (and pip install sounddevice)"
 
 
@@ -511,3 +531,13 @@ def test_devices_command_without_portaudio_is_one_line(monkeypatch, capsys, caut
     monkeypatch.setitem(sys.modules, "sounddevice", None)
     assert main(["devices"]) == 2
     assert capsys.readouterr().err == f"rtanalyzer: error: {MISSING_PORTAUDIO}\n"
+
+
+def test_devices_command_with_no_devices_says_so(monkeypatch, capsys, cautions_already_shown):
+    from rtanalyzer.cli.main import main
+
+    monkeypatch.setattr(soundcard_devices, "load_sounddevice", lambda: FakeSd([], default=(-1, -1)))
+    assert main(["devices"]) == 0
+    assert capsys.readouterr().out == "no sound devices found (no sound card, or no sound server running?)\n"
+    with pytest.raises(SoundCardError, match=r"^there is no default input device; input devices: none"):
+        SoundCardSource(stream_factory=Factory())

@@ -1,7 +1,7 @@
 """The sound-card source through a real audio server: PulseAudio's null sink, played and captured.
 
-Output goes to the ALSA device ``pulse`` (the null sink 'bench'); input comes from the same
-device, reading the sink's monitor, in one full-duplex PortAudio stream. PulseAudio's null sink
+Output goes to the ALSA device ``pulse`` (the null sink 'bench') while input comes from the same
+device, reading the sink's monitor: playing and recording at once, as at the bench. PulseAudio's null sink
 runs at s16le 44.1 kHz by default, so a 48 kHz stream is converted to 16 bits and resampled
 twice on its way round: the tolerances below allow for that, and no more.
 

@@ -12,7 +12,8 @@ def _table(devices: list[dict]) -> str:
         return "no sound devices found (no sound card, or no sound server running?)\n"
     width = max(len("name"), *(len(d["name"]) for d in devices))
     api_width = max(len("host API"), *(len(d["hostapi"]) for d in devices))
-    lines = [f"in out {'index':>5}  {'name':<{width}}  {'host API':<{api_width}}  {'in ch':>5}  {'out ch':>6}  default rate"]
+    header = f"in out {'index':>5}  {'name':<{width}}  {'host API':<{api_width}}  {'in ch':>5}  {'out ch':>6}"
+    lines = [header + "  default rate"]
     for d in devices:
         marks = f"{'*' if d['default_input'] else ' ':>2} {'*' if d['default_output'] else ' ':>3}"
         lines.append(
@@ -26,7 +27,7 @@ def _table(devices: list[dict]) -> str:
 def _run(args) -> int:
     import sys
 
-    from rtanalyzer.sources.soundcard import list_devices
+    from rtanalyzer.sources.soundcard_devices import list_devices
 
     devices = list_devices()
     if args.json:

@@ -7,14 +7,15 @@ from __future__ import annotations
 
 import argparse
 import json
+import queue
 import sys
 import time
 
 from rtanalyzer.cli.generate import KINDS, add_signal_options, build_signal
 from rtanalyzer.cli.knob_options import add_knob_options, knob_changes
 from rtanalyzer.errors import RtaError
+from rtanalyzer.live.session import SOURCES
 
-SOURCES = ("sim", "device", "file")
 
 
 def add_parser(subparsers) -> None:
@@ -60,21 +61,6 @@ def add_parser(subparsers) -> None:
     p.set_defaults(shows_cautions=True, func=run)
 
 
-def device_present() -> tuple[bool, str]:
-    """Is there a sound card to record from? (and why not, in words)."""
-    try:
-        import sounddevice as sd
-    except (ImportError, OSError) as exc:
-        return False, f"no sound device support ({exc.__class__.__name__}: {exc})"
-    try:
-        devices = sd.query_devices()
-    except Exception as exc:  # PortAudio failing to enumerate is "no device" to us
-        return False, f"no sound device ({exc})"
-    if not any(d["max_input_channels"] > 0 for d in devices):
-        return False, "no sound input device found"
-    return True, ""
-
-
 def _signal(args: argparse.Namespace, default_kind: str | None):
     """The generator's signal: --generate, else what --tones/--tone imply, else the default."""
     if args.kind is None and default_kind is not None:
@@ -93,92 +79,48 @@ def _signal(args: argparse.Namespace, default_kind: str | None):
     return build_signal(args)
 
 
-def _plan_settings(args: argparse.Namespace, signal, measure: str, carrier_default: float | None) -> dict:
-    from rtanalyzer.sources.drive import tones_of
-
-    settings = {"carrier": args.carrier if args.carrier is not None else carrier_default,
-                "wanted": args.wanted or "auto"}
-    if args.resolution is not None:
-        settings["resolution"] = args.resolution
-    tones = list(tones_of(signal)[0]) if signal is not None else (args.tone or args.tones)
-    if not tones:
-        raise RtaError("say which tones the capture holds: --generate ..., --tone HZ or --tones F1 F2")
-    if measure == "twotone":
-        if len(tones) != 2:
-            raise RtaError(f"the two-tone figures need two tones; the plan has {len(tones)}")
-        settings["tones"] = tones
-    else:
-        settings["tone"] = tones
-    return settings
-
-
-def _build(args: argparse.Namespace):
-    """Source, signal and plan settings from the options; says in one line what it chose."""
+def config_from_args(args: argparse.Namespace):
+    """The session the options describe, with its source resolved (and a notice if chosen)."""
+    from rtanalyzer.live.session import SessionConfig, resolve_source
     from rtanalyzer.sources.bench.knobs import BenchKnobs
 
-    source_kind = args.source
-    if source_kind is None:
-        present, why = device_present()
-        source_kind = "device" if present else "sim"
-        if not present:
-            print(f"rtanalyzer: {why}: using the simulated bench", file=sys.stderr)
-    if source_kind == "file":
-        from rtanalyzer.sources.file_source import FileSource
-        from rtanalyzer.sources.wavfile import read_capture
-
-        if not args.file:
-            raise RtaError("--source file needs --file F")
-        signal = _signal(args, None)
-        source = FileSource(read_capture(args.file), loop=args.loop, block=args.block)
-        carrier_default = None
-    elif source_kind == "sim":
-        from rtanalyzer.sources.bench_source import BenchSource
-
-        knobs = BenchKnobs().with_changes(**knob_changes(args))
-        signal = _signal(args, "tone")
-        source = BenchSource(knobs, signal, args.rate, args.block)
-        carrier_default = knobs.carrier_offset_hz
-        if args.wanted is None:
-            args.wanted = knobs.wanted_side
-    else:
-        from rtanalyzer.generator.generator import Generator
-        from rtanalyzer.generator.signals import Quadrature
-        from rtanalyzer.sources.soundcard import SoundCardSource
-
-        signal = _signal(args, "tone")
-        out_channels = 2 if isinstance(signal, Quadrature) else 1
-        generator = Generator(signal, args.rate, channels=out_channels)
-        channels = args.input_channels or (2 if args.iq else max(1, args.channel or 1))
-        source = SoundCardSource(
-            input_device=args.input, output_device=args.output, rate_hz=args.rate,
-            input_channels=channels, block=args.block, renderer=generator,
-        )
-        carrier_default = None
-    measure = args.measure or ("twotone" if args.kind == "twotone" else "sideband")
-    return source, signal, measure, _plan_settings(args, signal, measure, carrier_default)
+    if args.seconds is not None and not args.seconds > 0:
+        raise RtaError(f"--seconds {args.seconds:g}: give a positive number of seconds")
+    config, notice = resolve_source(SessionConfig(source=args.source))
+    signal = _signal(args, None if config.source == "file" else "tone")
+    measure = args.measure or ("twotone" if (args.kind == "twotone" or (signal is None and args.tones)) else "sideband")
+    config = config.with_changes(
+        signal=signal,
+        knobs=BenchKnobs().with_changes(**knob_changes(args)),
+        rate_hz=args.rate, block=args.block, input_device=args.input, output_device=args.output,
+        input_channels=args.input_channels, file=args.file, loop=args.loop,
+        tones_hz=tuple(args.tone or args.tones or ()), carrier_hz=args.carrier, wanted=args.wanted,
+        channel=args.channel, iq=bool(args.iq), measurement=measure, update_hz=args.update_hz,
+        averages=args.average, resolution_hz=args.resolution,
+    )
+    return config, notice
 
 
 def run(args: argparse.Namespace) -> int:
-    from rtanalyzer.live.engine import LiveEngine, live_nfft
-    from rtanalyzer.measurements.registry import get
+    from rtanalyzer.cli.live_display import TerminalDisplay
+    from rtanalyzer.live.session import build_engine
 
     if not args.headless:
         print("rtanalyzer: the desktop window is not available yet; showing the live readout here",
               file=sys.stderr)
-    source, signal, measure, settings = _build(args)
-    nfft = live_nfft(source.rate_hz, args.resolution)
-    engine = LiveEngine(source, get(measure), settings, channel=args.channel, iq=bool(args.iq),
-                        update_hz=args.update_hz, nfft=nfft, averages=args.average)
-    from rtanalyzer.cli.live_display import TerminalDisplay
-
-    display = None if args.jsonl else TerminalDisplay(sys.stdout, source.describe(), measure)
+    config, notice = config_from_args(args)
+    if notice:
+        print(f"rtanalyzer: {notice}", file=sys.stderr)
+    engine = build_engine(config)
+    source = engine.source
+    display = None if args.jsonl else TerminalDisplay(sys.stdout, source.describe(), engine.measurement.name)
     engine.start()
     started = time.monotonic()
     try:
         while args.seconds is None or time.monotonic() - started < args.seconds:
             try:
                 readout = engine.readouts.get(timeout=1.0)
-            except Exception:
+            except queue.Empty:
                 if source.state == "finished":
                     break
                 continue

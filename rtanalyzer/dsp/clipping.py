@@ -18,6 +18,17 @@ def clip_threshold(full_scale_lsb: float) -> float:
     return 1.0 - 1e-6
 
 
+def last_clip_run(column: np.ndarray, full_scale_lsb: float = 0.0) -> int:
+    """Index of the last sample of the last clip (a run of two at full scale, or a float sample
+    beyond it) in a 1-D block, or -1 when the block holds none."""
+    mag = np.abs(np.asarray(column, dtype=np.float64))
+    beyond = np.flatnonzero(mag > 1.0)
+    hot = mag >= clip_threshold(full_scale_lsb)
+    runs = np.flatnonzero(hot[1:] & hot[:-1]) + 1
+    last = max(beyond[-1] if beyond.size else -1, runs[-1] if runs.size else -1)
+    return int(last)
+
+
 def clipped_channels(samples: np.ndarray, full_scale_lsb: float = 0.0) -> tuple[bool, ...]:
     """Per-channel clip flags for ``samples`` of shape (frames, channels).
 

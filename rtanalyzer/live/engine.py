@@ -18,6 +18,7 @@ from typing import Any, Callable
 import numpy as np
 
 from rtanalyzer.dsp.running import RunningSpectrum
+from rtanalyzer.dsp.spectrum import Spectrum
 from rtanalyzer.errors import RtaError
 from rtanalyzer.live.best import BestTracker
 from rtanalyzer.live.meters import Meters
@@ -53,6 +54,9 @@ class Readout:
     best: dict[str, Any] | None = None
     sweep: dict[str, Any] | None = None
     timing: dict[str, float] = field(default_factory=dict)
+    # For displays (not in the JSON): the averaged spectrum and the analysed window of frames.
+    spectrum: Spectrum | None = None
+    samples: np.ndarray | None = None
 
     def as_json(self) -> dict[str, Any]:
         """Flat JSON: the measurement's keys, plus time, levels, xruns and the engine's state."""
@@ -216,8 +220,10 @@ class LiveEngine:
         sweep = None
         usable = True
         if last.step is not None:
-            # The whole window must lie in one step, past its settling time.
+            # The whole window must lie in one step occurrence, past its settling time.
             usable = first is not None and first.step == last.step and first.settled
+            if last.settled_from is not None:
+                usable = usable and end - self.nfft >= last.settled_from
             sweep = {"step": last.step, "frequency_hz": last.tones_hz[0], "settled": usable}
         return settings, sweep, usable
 
@@ -262,4 +268,6 @@ class LiveEngine:
             self.best.as_dict() if self.best is not None else None,
             sweep,
             {"dsp_s": dsp_done - started, "measure_s": finished - dsp_done},
+            spectrum,
+            window,
         )

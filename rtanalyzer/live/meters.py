@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from rtanalyzer.dsp.clipping import clip_threshold
+from rtanalyzer.dsp.clipping import clip_threshold, last_clip_run
 
 # A clip stays shown this long after the last clipped sample, so a brief one is not missed.
 CLIP_HOLD_S = 2.0
@@ -13,6 +13,9 @@ CLIP_HOLD_S = 2.0
 class Meters:
     """Peak and RMS (dBFS, AES17: a full-scale sine reads 0 dBFS) per channel, and clip hold.
 
+    The clip light follows the rule of ``dsp.clipping`` (two samples in a row at full scale, or
+    a float sample beyond it) and stays on for CLIP_HOLD_S after the clipped sample.
+
     ``update`` gets every new frame since the last call, so no clipped sample escapes even
     when readouts are slower than the audio blocks.
     """
@@ -20,6 +23,7 @@ class Meters:
     def __init__(self, channels: int, rate_hz: float, full_scale_lsb: float = 2.0**-15) -> None:
         self.channels = channels
         self.rate_hz = rate_hz
+        self._lsb = full_scale_lsb
         self._limit = clip_threshold(full_scale_lsb)
         self.peak_dbfs = [-np.inf] * channels
         self.rms_dbfs = [-np.inf] * channels
@@ -38,9 +42,11 @@ class Meters:
             # +3.01 dB: a sine's RMS is 1/sqrt(2) of its peak, and the meter reads in sine dBFS.
             self.rms_dbfs[ch] = 20 * np.log10(rms * np.sqrt(2)) if rms > 0 else -np.inf
             if peak >= self._limit:
-                hits = int(np.count_nonzero(np.abs(col) >= self._limit))
-                self.clip_count[ch] += hits
-                self._last_clip[ch] = self._frames + len(col)
+                # Same rule as for recorded captures: a run at full scale, not a single touch.
+                last = last_clip_run(col, self._lsb)
+                if last >= 0:
+                    self.clip_count[ch] += int(np.count_nonzero(np.abs(col) >= self._limit))
+                    self._last_clip[ch] = self._frames + last + 1
         self._frames += len(frames)
 
     def clipping(self) -> list[bool]:

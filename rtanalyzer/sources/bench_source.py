@@ -94,4 +94,6 @@ class BenchSource(PacedSource):
         if self._plan is None:
             return Drive(tones_of(self._signal)[0])
         step, freq, settled = self._plan.step_at(local)
-        return Drive((freq,), settled, step)
+        into_step = self._plan.dwell_frames - self._plan.frames_to_boundary(local)
+        settled_from = frame - into_step + self._plan.settle_frames
+        return Drive((freq,), settled, step, settled_from)

@@ -19,16 +19,13 @@ class FileSource(PacedSource):
 
     def render_block(self, frames: int) -> np.ndarray | None:
         total = len(self._data)
+        if self.loop:
+            # Whole blocks whatever the file's length, so playback keeps real-time pace.
+            index = (self._pos + np.arange(frames)) % total
+            self._pos = int((self._pos + frames) % total)
+            return self._data[index]
         if self._pos >= total:
-            if not self.loop:
-                return None
-            self._pos = 0
-        end = min(self._pos + frames, total)
-        block = self._data[self._pos : end]
-        self._pos = end
-        if len(block) < frames and self.loop:
-            # Wrap within the block so a looped file plays without a gap.
-            rest = frames - len(block)
-            block = np.concatenate([block, self._data[:rest]])
-            self._pos = rest
+            return None
+        block = self._data[self._pos : self._pos + frames]
+        self._pos += len(block)
         return block

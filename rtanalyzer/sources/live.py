@@ -40,6 +40,7 @@ class Drive:
     tones_hz: tuple[float, ...]
     settled: bool = True
     step: int | None = None  # sweep step, None when not sweeping
+    settled_from: int | None = None  # absolute frame from which this step has settled
 
 
 class LiveSource:

@@ -1,0 +1,296 @@
+"""Qt widgets of the window: the large readouts, the level meters and the banner."""
+
+from __future__ import annotations
+
+import math
+from collections import deque
+
+from PyQt6.QtCore import QRectF, Qt
+from PyQt6.QtGui import QColor, QFont, QPainter, QPen
+from PyQt6.QtWidgets import QFrame, QGridLayout, QHBoxLayout, QLabel, QSizePolicy, QVBoxLayout, QWidget
+
+from rtanalyzer.gui import style
+
+MINUS = "\u2212"
+
+
+def signed(value: float, decimals: int = 1) -> str:
+    """A number with a real minus sign."""
+    return f"{value:.{decimals}f}".replace("-", MINUS)
+
+
+def parse_readout(text: str) -> float | None:
+    """The number in a readout's text ('≥ 32.9', '−41.0'), for tests and exports."""
+    cleaned = text.replace(MINUS, "-").replace("≥", "").replace("≤", "").strip()
+    try:
+        return float(cleaned)
+    except ValueError:
+        return None
+
+
+def _font(points: float, weight: QFont.Weight = QFont.Weight.Normal) -> QFont:
+    font = QFont()
+    font.setPointSizeF(points)
+    font.setWeight(weight)
+    return font
+
+
+class ChangeTracker:
+    """Direction of a figure's change over about the last second (steady below a threshold)."""
+
+    def __init__(self, seconds: float = 1.0, steady_db: float = 0.1) -> None:
+        self.seconds = seconds
+        self.steady_db = steady_db
+        self._history: deque[tuple[float, float]] = deque()
+
+    def reset(self) -> None:
+        self._history.clear()
+
+    def update(self, t: float, value: float | None) -> float | None:
+        """Add a value; return its change over ``seconds`` (None until there is one)."""
+        if value is None or not math.isfinite(value):
+            return None
+        self._history.append((t, value))
+        while len(self._history) > 2 and t - self._history[1][0] >= self.seconds:
+            self._history.popleft()
+        then_t, then_v = self._history[0]
+        if t - then_t < 0.5 * self.seconds:
+            return None
+        return value - then_v
+
+
+class ReadoutTile(QFrame):
+    """One large figure with its title, unit, a 'which way it went' mark and a detail line."""
+
+    def __init__(self, key: str, title: str, unit: str, larger_is_better: bool, parent=None) -> None:
+        super().__init__(parent)
+        self.key = key
+        self.unit = unit
+        self.larger_is_better = larger_is_better
+        self.tracker = ChangeTracker()
+        self.setObjectName("tile")
+        self.setSizePolicy(QSizePolicy.Policy.Expanding, QSizePolicy.Policy.Fixed)
+        layout = QGridLayout(self)
+        layout.setContentsMargins(14, 8, 14, 8)
+        layout.setHorizontalSpacing(6)
+        layout.setVerticalSpacing(0)
+        self.title_label = QLabel(title)
+        self.title_label.setFont(_font(style.TITLE_PT, QFont.Weight.DemiBold))
+        self.title_label.setStyleSheet(f"color: {style.INK_SOFT};")
+        self.value_label = QLabel("—")
+        self.value_label.setObjectName(f"value_{key}")
+        self.value_label.setFont(_font(style.VALUE_PT, QFont.Weight.Bold))
+        self.value_label.setAlignment(Qt.AlignmentFlag.AlignLeft | Qt.AlignmentFlag.AlignBaseline)
+        self.unit_label = QLabel(unit)
+        self.unit_label.setFont(_font(style.UNIT_PT))
+        self.unit_label.setAlignment(Qt.AlignmentFlag.AlignLeft | Qt.AlignmentFlag.AlignBaseline)
+        self.change_label = QLabel("")
+        self.change_label.setFont(_font(15, QFont.Weight.DemiBold))
+        self.change_label.setAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
+        self.change_label.setMinimumWidth(96)
+        self.detail_label = QLabel("")
+        self.detail_label.setFont(_font(style.SMALL_PT + 1))
+        self.detail_label.setStyleSheet(f"color: {style.INK_SOFT};")
+        layout.addWidget(self.title_label, 0, 0, 1, 3)
+        value_row = QHBoxLayout()
+        value_row.setSpacing(8)
+        value_row.addWidget(self.value_label, 0, Qt.AlignmentFlag.AlignBaseline)
+        value_row.addWidget(self.unit_label, 0, Qt.AlignmentFlag.AlignBaseline)
+        value_row.addStretch(1)
+        layout.addLayout(value_row, 1, 0, 1, 2)
+        layout.addWidget(self.change_label, 1, 2)
+        layout.addWidget(self.detail_label, 2, 0, 1, 3)
+        self.value: float | None = None
+        self.set_unavailable("waiting for the first readout")
+
+    def set_figure(self, t: float, value: float | None, bound: str = "", detail: str = "", unit: str | None = None) -> None:
+        """Show ``value`` (None: no figure); ``bound`` is '≥' or '≤' when the component is under the noise."""
+        if unit is not None and unit != self.unit:
+            self.unit = unit
+            self.unit_label.setText(unit)
+        if value is None:
+            self.set_unavailable(detail or "no figure")
+            return
+        self.value = value
+        self.value_label.setText(f"{bound + ' ' if bound else ''}{signed(value)}")
+        self.value_label.setStyleSheet(f"color: {style.INK};")
+        self.unit_label.setStyleSheet(f"color: {style.INK};")
+        self.detail_label.setText(detail)
+        change = self.tracker.update(t, value)
+        if change is None or abs(change) < self.tracker.steady_db:
+            self.change_label.setText("steady" if change is not None else "")
+            self.change_label.setStyleSheet(f"color: {style.INK_SOFT};")
+            return
+        better = (change > 0) == self.larger_is_better
+        arrow = "▲" if change > 0 else "▼"
+        colour = style.BETTER if better else style.WORSE
+        self.change_label.setText(f"{arrow} {abs(change):.1f} dB\n{'better' if better else 'worse'}")
+        self.change_label.setStyleSheet(f"color: {colour};")
+
+    def set_unavailable(self, why: str) -> None:
+        self.value = None
+        self.value_label.setText("—")
+        self.value_label.setStyleSheet(f"color: {style.RULE};")
+        self.unit_label.setStyleSheet(f"color: {style.RULE};")
+        self.change_label.setText("")
+        self.detail_label.setText(why)
+        self.tracker.reset()
+
+
+class MeterBar(QWidget):
+    """A horizontal level bar for one channel: RMS filled, peak as a tick, dBFS scale."""
+
+    LOW_DBFS = -90.0
+
+    def __init__(self, parent=None) -> None:
+        super().__init__(parent)
+        self.peak: float | None = None
+        self.rms: float | None = None
+        self.setMinimumHeight(18)
+        self.setSizePolicy(QSizePolicy.Policy.Expanding, QSizePolicy.Policy.Fixed)
+
+    def set_levels(self, peak: float | None, rms: float | None) -> None:
+        if (peak, rms) != (self.peak, self.rms):
+            self.peak, self.rms = peak, rms
+            self.update()
+
+    def _x(self, db: float, width: float) -> float:
+        return max(0.0, min(1.0, (db - self.LOW_DBFS) / -self.LOW_DBFS)) * width
+
+    def paintEvent(self, event) -> None:  # noqa: N802 - Qt
+        p = QPainter(self)
+        w, h = self.width(), self.height()
+        p.fillRect(0, 0, w, h, QColor(style.PLOT))
+        p.setPen(QPen(QColor(style.GRID), 1))
+        for db in range(-80, 0, 10):  # a tick every 10 dB
+            x = self._x(db, w)
+            p.drawLine(int(x), 0, int(x), h)
+        if self.rms is not None:
+            p.fillRect(QRectF(0, 3, self._x(self.rms, w), h - 6), QColor(style.TRACE))
+        if self.peak is not None:
+            x = self._x(self.peak, w)
+            p.fillRect(QRectF(x - 1.5, 0, 3, h), QColor(style.ALARM if self.peak > -1.0 else style.INK))
+        p.setPen(QPen(QColor(style.RULE), 1))
+        p.drawRect(0, 0, w - 1, h - 1)
+        p.end()
+
+
+class ClipLight(QLabel):
+    """'CLIP' lit while the engine holds a clip on that channel."""
+
+    def __init__(self, parent=None) -> None:
+        super().__init__("CLIP", parent)
+        self.setAlignment(Qt.AlignmentFlag.AlignCenter)
+        self.setFixedWidth(46)
+        self.setFont(_font(9, QFont.Weight.Bold))
+        self.lit = None
+        self.set_lit(False)
+
+    def set_lit(self, lit: bool) -> None:
+        if lit == self.lit:
+            return
+        self.lit = lit
+        if lit:
+            self.setStyleSheet(f"background: {style.ALARM}; color: white; border-radius: 3px; padding: 1px;")
+        else:
+            self.setStyleSheet(f"background: transparent; color: {style.RULE}; border: 1px solid {style.RULE};"
+                               "border-radius: 3px; padding: 1px;")
+
+
+class MetersTile(QFrame):
+    """Input level per channel (peak and RMS, dBFS), held clip lights and the dropout counters."""
+
+    def __init__(self, parent=None) -> None:
+        super().__init__(parent)
+        self.setObjectName("tile")
+        self.setSizePolicy(QSizePolicy.Policy.Preferred, QSizePolicy.Policy.Fixed)
+        self.setMinimumWidth(300)
+        self._layout = QVBoxLayout(self)
+        self._layout.setContentsMargins(12, 8, 12, 8)
+        self._layout.setSpacing(3)
+        title = QLabel("Input levels")
+        title.setFont(_font(style.TITLE_PT, QFont.Weight.DemiBold))
+        title.setStyleSheet(f"color: {style.INK_SOFT};")
+        self._layout.addWidget(title)
+        self._rows_box = QVBoxLayout()
+        self._rows_box.setSpacing(2)
+        self._layout.addLayout(self._rows_box)
+        self.xrun_label = QLabel("")
+        self.xrun_label.setObjectName("xruns")
+        self.xrun_label.setFont(_font(style.SMALL_PT))
+        self._layout.addWidget(self.xrun_label)
+        self.rows: list[tuple[MeterBar, QLabel, ClipLight]] = []
+        self.set_channels(1)
+
+    def set_channels(self, count: int, names: list[str] | None = None) -> None:
+        if len(self.rows) == count:
+            return
+        while self._rows_box.count():
+            item = self._rows_box.takeAt(0)
+            if item.layout() is not None:
+                while item.layout().count():
+                    w = item.layout().takeAt(0).widget()
+                    if w is not None:
+                        w.deleteLater()
+        self.rows = []
+        for ch in range(count):
+            name = names[ch] if names and ch < len(names) else f"in {ch + 1}"
+            head = QHBoxLayout()
+            label = QLabel(name)
+            label.setFont(_font(style.SMALL_PT, QFont.Weight.DemiBold))
+            label.setFixedWidth(40)
+            bar = MeterBar()
+            clip = ClipLight()
+            head.addWidget(label)
+            head.addWidget(bar, 1)
+            head.addWidget(clip)
+            numbers = QLabel("")
+            numbers.setFont(_font(style.SMALL_PT))
+            row = QVBoxLayout()
+            row.setSpacing(0)
+            row.addLayout(head)
+            row.addWidget(numbers)
+            self._rows_box.addLayout(row)
+            self.rows.append((bar, numbers, clip))
+
+    def show_levels(self, levels: dict, xruns: dict, names: list[str] | None = None) -> None:
+        peaks = levels.get("peak_dbfs") or []
+        rms = levels.get("rms_dbfs") or []
+        clips = levels.get("clip") or []
+        counts = levels.get("clipped_samples") or []
+        self.set_channels(max(1, len(peaks)), names)
+        for ch, (bar, numbers, clip) in enumerate(self.rows):
+            pk = peaks[ch] if ch < len(peaks) else None
+            rm = rms[ch] if ch < len(rms) else None
+            bar.set_levels(pk, rm)
+            clip.set_lit(bool(clips[ch]) if ch < len(clips) else False)
+            pk_text = "—" if pk is None else signed(pk)
+            rm_text = "—" if rm is None else signed(rm)
+            clipped = counts[ch] if ch < len(counts) else 0
+            extra = f" · {clipped} clipped samples" if clipped else ""
+            numbers.setText(f"peak {pk_text} dBFS · RMS {rm_text} dBFS{extra}")
+        over = xruns.get("input_overflows", 0)
+        under = xruns.get("output_underflows", 0)
+        dropped = xruns.get("dropped_blocks", 0)
+        colour = style.WORSE if (over or under or dropped) else style.INK_SOFT
+        self.xrun_label.setStyleSheet(f"color: {colour};")
+        self.xrun_label.setText(f"overflows {over} · underflows {under} · dropped blocks {dropped}")
+
+
+class Banner(QLabel):
+    """A calm notice across the top of the window (which source, and why)."""
+
+    def __init__(self, parent=None) -> None:
+        super().__init__(parent)
+        self.setObjectName("banner")
+        self.setWordWrap(True)
+        self.setFont(_font(11))
+        self.hide()
+
+    def say(self, text: str | None) -> None:
+        if text:
+            self.setText(text)
+            self.show()
+        else:
+            self.clear()
+            self.hide()
