@@ -137,10 +137,17 @@ def _run(source, measurement, settings):
     return readouts
 
 
-def _late_results(readouts, count=3):
+def _late(readouts, figure, count=5):
+    """Median of ``figure(result)`` over the last ``count`` readouts with figures.
+
+    The median rides out one window spoilt by a scheduling hiccup of the shared machine (a
+    late block shows as a click that spreads across the spectrum); the values go in the
+    message so a failure shows whether one readout or all of them were off.
+    """
     good = [r for r in readouts if r.result is not None]
     assert len(good) >= count, [r.error for r in readouts]
-    return [r.result for r in good[-count:]]
+    values = [figure(r.result) for r in good[-count:]]
+    return float(np.median(values)), {"values": values, "xruns": good[-1].xruns}
 
 
 def test_simulated_exciter_through_the_sink_matches_the_model(pulse_loop):
@@ -149,17 +156,21 @@ def test_simulated_exciter_through_the_sink_matches_the_model(pulse_loop):
     source = SoundCardSource(DEVICE, DEVICE, RATE, 1, 1024, BenchRenderer(bench))
     readouts = _run(source, SidebandMeasurement(), {"tone": [1000.0], "carrier": 4000.0, "wanted": "above"})
     expected = truth["points"][0]
-    for result in _late_results(readouts):
-        point = result["points"][0]
-        # Levels: 16-bit conversion and two resamplings cost well under 0.1 dB in the passband;
-        # 0.5 dB leaves room for the server's mixing and a single short window's estimate.
-        assert point["wanted_dbfs"] == pytest.approx(expected["wanted_dbfs"], abs=0.5)
-        # Ratios (about 33 and 46 dB) cancel common gain; 1 dB covers the weaker components'
-        # estimate next to the resampler's own images and noise, far below them.
-        assert point["sideband_suppression_db"] == pytest.approx(expected["sideband_suppression_db"], abs=1.0)
-        assert result["carrier_suppression_db"] == pytest.approx(truth["carrier_suppression_db"], abs=1.0)
-        assert point["wanted_hz"] == pytest.approx(expected["wanted_hz"], abs=1.0)
-        assert not result["clipped"]
+    # Levels: 16-bit conversion and two resamplings cost well under 0.1 dB in the passband
+    # (0.00 dB was seen); 0.5 dB leaves room for the server's mixing and one short window.
+    wanted, seen = _late(readouts, lambda r: r["points"][0]["wanted_dbfs"])
+    assert wanted == pytest.approx(expected["wanted_dbfs"], abs=0.5), seen
+    # Ratios (about 33 and 46 dB) cancel common gain; 1 dB covers the weaker components'
+    # estimate beside the resampler's images and noise, far below them.
+    suppression, seen = _late(readouts, lambda r: r["points"][0]["sideband_suppression_db"])
+    assert suppression == pytest.approx(expected["sideband_suppression_db"], abs=1.0), seen
+    carrier, seen = _late(readouts, lambda r: r["carrier_suppression_db"])
+    assert carrier == pytest.approx(truth["carrier_suppression_db"], abs=1.0), seen
+    # Frequencies: a loop that drops or repeats frames shifts every tone (0.15 % was seen
+    # through a single duplex stream); a clean one leaves them where the model put them.
+    where, seen = _late(readouts, lambda r: r["points"][0]["wanted_hz"])
+    assert where == pytest.approx(expected["wanted_hz"], abs=1.0), seen
+    assert not readouts[-1].result["clipped"]
 
 
 def test_generator_two_tone_loops_back_clean(pulse_loop):
@@ -168,17 +179,22 @@ def test_generator_two_tone_loops_back_clean(pulse_loop):
     # No carrier: a direct audio loop has its "carrier" at 0 Hz, so let the plugin find the pair.
     readouts = _run(source, TwoToneMeasurement(), {"tones": [700.0, 1900.0]})
     each_tone = -6.0 - 20 * np.log10(2)  # equal tones: each 6.02 dB below PEP (arithmetic)
-    for result in _late_results(readouts):
-        assert result["tone_hz"] == [pytest.approx(700.0, abs=1.0), pytest.approx(1900.0, abs=1.0)]
-        for level in result["tone_dbfs"]:
-            assert level == pytest.approx(each_tone, abs=0.5)  # same allowance as for the bench's levels
-        assert result["pep_dbfs"] == pytest.approx(-6.0, abs=0.5)
-        # A digital loop has no intermodulation: nothing of order 3 or 5 may show at -80 dBc or
-        # above (products that would fold below 0 Hz are not measured and come back null).
-        for order in result["imd"][:2]:
-            for side in ("lower", "upper"):
-                if order[f"{side}_dbc"] is not None and order[f"{side}_detected"]:
-                    assert order[f"{side}_dbc"] < -80.0, order
+    for i, nominal in enumerate((700.0, 1900.0)):
+        where, seen = _late(readouts, lambda r: r["tone_hz"][i])
+        assert where == pytest.approx(nominal, abs=1.0), seen
+        level, seen = _late(readouts, lambda r: r["tone_dbfs"][i])
+        assert level == pytest.approx(each_tone, abs=0.5), seen  # same allowance as the bench's levels
+    pep, seen = _late(readouts, lambda r: r["pep_dbfs"])
+    assert pep == pytest.approx(-6.0, abs=0.5), seen
+    # A digital loop has no intermodulation: nothing of order 3 or 5 may reach -80 dBc (dBc is
+    # the level, or the noise bound when not detected; products that would fold below 0 Hz are
+    # not measured and come back null).
+    for k, order in enumerate((3, 5)):
+        for side in ("lower", "upper"):
+            if readouts[-1].result["imd"][k][f"{side}_dbc"] is None:
+                continue
+            dbc, seen = _late(readouts, lambda r: r["imd"][k][f"{side}_dbc"])
+            assert dbc < -80.0, (order, side, seen)
     assert readouts[-1].state == "running"
     assert source.drive_at(readouts[-1].frame - 1) is not None  # the generator's tones are known
 
@@ -194,8 +210,11 @@ def test_readouts_carry_meters_and_xrun_counts(pulse_loop):
     assert counts == sorted(counts)  # running counts: they never go back
     # Meters over the frames since the previous readout: the peak is the PEP, -6.02 dB; the RMS,
     # read as the sine of equal power, is each tone + 3.01 dB = -9.03 dBFS (arithmetic).
-    assert last.levels["peak_dbfs"][0] == pytest.approx(-6.0, abs=0.5)
-    assert last.levels["rms_dbfs"][0] == pytest.approx(-6.0 - 20 * np.log10(2) + 10 * np.log10(2), abs=0.5)
+    late = readouts[-5:]
+    peak = float(np.median([r.levels["peak_dbfs"][0] for r in late]))
+    rms = float(np.median([r.levels["rms_dbfs"][0] for r in late]))
+    assert peak == pytest.approx(-6.0, abs=0.5), [r.levels for r in late]
+    assert rms == pytest.approx(-6.0 - 20 * np.log10(2) + 10 * np.log10(2), abs=0.5), [r.levels for r in late]
     assert last.levels["clip"] == [False]
     flat = last.as_json()
     assert flat["xruns"] == last.xruns and flat["source_state"] == "running" and flat["levels"] == last.levels
