@@ -1,6 +1,8 @@
-"""`rtanalyzer live`: the live analyzer — sound card, file or simulated bench — in the terminal.
+"""`rtanalyzer live`: the live analyzer — sound card, file or simulated bench — in a window.
 
-With no sound device present it runs on the simulated bench and says so in one line.
+The desktop window (rtanalyzer.gui) opens unless --headless or --jsonl is given; when PyQt6 or
+vispy are missing, or no display can be opened, one line says so and the figures are shown in
+the terminal instead. With no sound device present it runs on the simulated bench and says so.
 """
 
 from __future__ import annotations
@@ -12,10 +14,14 @@ import sys
 import time
 
 from rtanalyzer.cli.generate import KINDS, add_signal_options, build_signal
+from rtanalyzer.cli.history_options import add_save_options, check_save_options
 from rtanalyzer.cli.knob_options import add_knob_options, knob_changes
 from rtanalyzer.errors import RtaError
 from rtanalyzer.live.session import SOURCES
 
+# Signal options, for telling whether the command line described the signal (window settings).
+_SIGNAL_DESTS = ("kind", "freq", "tones", "ratio_db", "band", "count", "spacing", "start", "stop", "steps",
+                 "dwell", "settle", "amplitude_db", "phase_offset_deg")
 
 
 def add_parser(subparsers) -> None:
@@ -26,6 +32,10 @@ def add_parser(subparsers) -> None:
         "show the figures live. With no sound device present, runs on the simulated bench.",
     )
     p.add_argument("--headless", action="store_true", help="terminal readout (no window)")
+    p.add_argument("--screenshot", metavar="FILE.png",
+                   help="window: save a picture of the whole window after --after seconds, then exit")
+    p.add_argument("--after", type=float, default=2.0, metavar="SECONDS",
+                   help="with --screenshot: how long the window runs first (default 2)")
     p.add_argument("--source", choices=SOURCES, default=None,
                    help="where the audio comes from (default: the sound card if there is one, else sim)")
     dev = p.add_argument_group("sound card")
@@ -58,7 +68,9 @@ def add_parser(subparsers) -> None:
     p.add_argument("--seconds", type=float, default=None, help="stop after this long (default: until Ctrl-C)")
     p.add_argument("--jsonl", action="store_true", help="one JSON object per readout")
     add_knob_options(p)
-    p.set_defaults(shows_cautions=True, func=run)
+    add_save_options(p, live=True)
+    # The safety cautions come once per user: printed by the terminal readout, shown by the window.
+    p.set_defaults(shows_cautions=False, func=run)
 
 
 def _signal(args: argparse.Namespace, default_kind: str | None):
@@ -101,18 +113,81 @@ def config_from_args(args: argparse.Namespace):
     return config, notice
 
 
+def explicit_options(args: argparse.Namespace) -> frozenset[str]:
+    """What the command line set (options left at their defaults do not count): the window
+    restores everything else from its saved settings."""
+    given = set()
+    if args.source is not None:
+        given.add("source")
+    if args.input is not None or args.output is not None or args.input_channels is not None:
+        given.add("devices")
+    if args.rate != 48000:
+        given.add("rate")
+    if args.file is not None or args.loop:
+        given.add("file")
+    if any(getattr(args, d, None) is not None for d in _SIGNAL_DESTS) or args.tone or args.level_dbfs != -6.0:
+        given.add("signal")
+    if args.carrier is not None:
+        given.add("plan.carrier")
+    if args.wanted is not None:
+        given.add("plan.wanted")
+    if args.channel is not None or args.iq:
+        given.add("plan.view")
+    if args.tone or args.tones:
+        given.add("plan.tones")
+    if args.measure is not None:
+        given.add("measurement")
+    if args.average != 1:
+        given.add("averages")
+    given.update(f"knobs.{name}" for name in knob_changes(args))
+    return frozenset(given)
+
+
+def _run_window(args: argparse.Namespace, config, notice: str | None) -> int | None:
+    """Run the desktop window; None when it cannot open (after one line saying why)."""
+    try:
+        from rtanalyzer.gui.app import display_problem, run_window
+    except (ImportError, OSError) as exc:
+        why = f"PyQt6 and vispy are needed: {exc}; pip install 'rtanalyzer[gui]'"
+    else:
+        why = display_problem()
+        if why is None:
+            return run_window(config, notice=notice, explicit=explicit_options(args), screenshot=args.screenshot,
+                              after=args.after, seconds=args.seconds)
+    if args.screenshot:
+        raise RtaError(f"--screenshot needs the desktop window, which cannot open here ({why})")
+    print(f"rtanalyzer: no desktop window ({why}); showing the live readout here", file=sys.stderr)
+    return None
+
+
 def run(args: argparse.Namespace) -> int:
+    from rtanalyzer.cli.cautions import show_first_run_notice
     from rtanalyzer.cli.live_display import TerminalDisplay
     from rtanalyzer.live.session import build_engine
 
-    if not args.headless:
-        print("rtanalyzer: the desktop window is not available yet; showing the live readout here",
-              file=sys.stderr)
+    window = not (args.headless or args.jsonl)
+    check_save_options(args)
+    if window and (args.save or args.save_best):
+        raise RtaError("--save and --save-best work with --headless (or --jsonl) until the window saves snapshots itself")
+    if not window:
+        show_first_run_notice(sys.stderr)  # stderr keeps --jsonl output clean
+        if args.screenshot:
+            raise RtaError("--screenshot needs the desktop window: leave out --headless and --jsonl")
     config, notice = config_from_args(args)
+    if window:
+        status = _run_window(args, config, notice)
+        if status is not None:
+            return status
+        show_first_run_notice(sys.stderr)
     if notice:
         print(f"rtanalyzer: {notice}", file=sys.stderr)
     engine = build_engine(config)
     source = engine.source
+    saver = None
+    if args.save or args.save_best:
+        from rtanalyzer.cli.history_options import LiveSaver
+
+        saver = LiveSaver(args, engine, config)  # opens the store now: a bad store stops us before the run
     display = None if args.jsonl else TerminalDisplay(sys.stdout, source.describe(), engine.measurement.name)
     engine.start()
     started = time.monotonic()
@@ -124,6 +199,8 @@ def run(args: argparse.Namespace) -> int:
                 if source.state == "finished":
                     break
                 continue
+            if saver is not None:
+                saver.readout(readout)
             if args.jsonl:
                 sys.stdout.write(json.dumps(readout.as_json(), allow_nan=False) + "\n")
                 sys.stdout.flush()
@@ -137,4 +214,6 @@ def run(args: argparse.Namespace) -> int:
         engine.stop()
         if display is not None:
             display.close()
+        if saver is not None:
+            saver.finish(sys.stderr if args.jsonl else sys.stdout)
     return 0

@@ -21,6 +21,10 @@ COMMAND_MODULES = (
     "rtanalyzer.cli.cautions",
     "rtanalyzer.cli.generate",
     "rtanalyzer.cli.devices",
+    "rtanalyzer.cli.network",
+    "rtanalyzer.cli.diagnose",
+    "rtanalyzer.cli.calibrate",
+    "rtanalyzer.cli.history",
 )
 
 

@@ -81,11 +81,38 @@ def twotone(r: dict[str, Any]) -> list[str]:
     return lines + _footer(r)
 
 
+def quadrature(r: dict[str, Any]) -> list[str]:
+    lines = [
+        f"{'tone':>10}  {'I - Q phase':>11}  {'as time':>11}  {'error':>9}  {'Q / I':>9}  predicted suppression"
+    ]
+    for p in r["points"]:
+        mark = "" if p["status"] == "quadrature" else f"  ({p['status'].upper()})"
+        lines.append(
+            f"{p['frequency_hz']:>7.1f} Hz  {p['phase_difference_deg']:>10.3f}°  {p['time_offset_us']:>8.2f} µs  "
+            f"{p['phase_error_deg']:>+8.3f}°  {p['amplitude_ratio_db']:>+6.3f} dB  "
+            f"{p['predicted_suppression_db']:.1f} dB{mark}"
+        )
+    if r["worst_predicted_suppression_db"] is not None and len(r["points"]) > 1:
+        lines.append(f"worst predicted suppression {r['worst_predicted_suppression_db']:.1f} dB at "
+                     f"{r['worst_frequency_hz']:.1f} Hz")
+    band = r["band"]
+    if band["worst_predicted_suppression_db"] is not None and band["points"] < len(r["points"]):
+        lines.append(f"in the band {band['low_hz']:g}-{band['high_hz']:g} Hz: worst "
+                     f"{band['worst_predicted_suppression_db']:.1f} dB at {band['worst_frequency_hz']:.1f} Hz")
+    if r.get("calibration"):
+        lines.append("calibration: " + ", ".join(r["calibration"]))
+    return lines + _footer(r)
+
+
 def generic(r: dict[str, Any]) -> list[str]:
     return [f"{k}: {v}" for k, v in r.items() if k not in ("measurement",)]
 
 
-RENDERERS: dict[str, Callable[[dict[str, Any]], list[str]]] = {"sideband": sideband, "twotone": twotone}
+RENDERERS: dict[str, Callable[[dict[str, Any]], list[str]]] = {
+    "sideband": sideband,
+    "twotone": twotone,
+    "quadrature": quadrature,
+}
 
 
 def render(name: str, result: dict[str, Any], header: str) -> str:

@@ -15,6 +15,7 @@ import numpy as np
 from PyQt6.QtCore import QTimer
 from vispy import scene
 from vispy.color import Color
+from vispy.visuals.text.text import FontManager, TextVisual
 
 from rtanalyzer.gui import style
 from rtanalyzer.gui.frames import DisplayFrame
@@ -52,11 +53,18 @@ class Plot:
     """A titled plot cell: ViewBox, left and bottom axes, grid lines, all following the camera."""
 
     def __init__(self, grid, row: int, col: int, title: str, x_title: str, y_title: str,
-                 x_ticks: TickFunction, y_ticks: TickFunction, y_axis_width: int = 58) -> None:
-        cell = grid.add_grid(row=row, col=col, spacing=0)
-        self.title = scene.Label(title, color=style.INK, font_size=11, anchor_x="left")
-        self.title.height_max = 28
-        cell.add_widget(self.title, row=0, col=0, col_span=2)
+                 x_ticks: TickFunction, y_ticks: TickFunction, y_axis_width: int = 58, col_span: int = 1,
+                 stretch: float = 1.0, legend: bool = False) -> None:
+        cell = grid.add_grid(row=row, col=col, col_span=col_span, spacing=0)
+        cell.stretch = (1.0, stretch)
+        self.cell = cell
+        header = cell.add_grid(row=0, col=0, col_span=2, spacing=0)
+        header.height_max = 26
+        self.title = scene.Label(title, color=style.INK, font_size=11)
+        header.add_widget(self.title, row=0, col=0)
+        self.legend = scene.Label("", color=style.INK_SOFT, font_size=9) if legend else None
+        if self.legend is not None:
+            header.add_widget(self.legend, row=0, col=1)
         self.y_axis = scene.AxisWidget(
             orientation="left", axis_label=y_title, axis_font_size=AXIS_PT, tick_font_size=AXIS_PT,
             axis_label_margin=44, tick_label_margin=6, text_color=style.INK, axis_color=style.INK_SOFT,
@@ -92,7 +100,12 @@ class Plot:
         return self.view.camera.rect
 
     def set_range(self, x=None, y=None) -> None:
-        self.view.camera.set_range(x=x, y=y, margin=0.0)
+        """Show exactly this range (vispy's set_range would add a margin of 0.1 units at margin=0)."""
+        r = self.view.camera.rect
+        x0, x1 = (float(x[0]), float(x[1])) if x is not None else (r.left, r.right)
+        y0, y1 = (float(y[0]), float(y[1])) if y is not None else (r.bottom, r.top)
+        if x1 > x0 and y1 > y0:
+            self.view.camera.rect = (x0, y0, x1 - x0, y1 - y0)
 
     def pixel_size(self) -> tuple[float, float]:
         """Data units per pixel along x and y."""
@@ -127,10 +140,11 @@ class Plot:
 class SpectrumPlot(Plot):
     """The averaged spectrum in dBFS, peak hold, noise floor and labelled markers."""
 
-    def __init__(self, grid, row: int, col: int) -> None:
+    def __init__(self, grid, row: int, col: int, col_span: int = 1) -> None:
         self.log = False
         super().__init__(grid, row, col, "Spectrum of the captured audio", "frequency, Hz", "level, dBFS",
-                         frequency_ticks(False), value_ticks(8), y_axis_width=64)
+                         frequency_ticks(False), value_ticks(8), y_axis_width=64, col_span=col_span, stretch=1.5,
+                         legend=True)
         scene_ = self.view.scene
         self.peak = scene.Line(np.zeros((2, 2), np.float32), color=style.PEAK, width=1, method="gl",
                                antialias=False, parent=scene_)
@@ -138,14 +152,13 @@ class SpectrumPlot(Plot):
                                 antialias=False, parent=scene_)
         self.noise = scene.Line(np.zeros((2, 2), np.float32), color=style.NOISE, width=1.5, connect="segments",
                                 method="gl", antialias=False, parent=scene_)
-        self.noise_label = scene.Text("", color=style.NOISE, font_size=LABEL_PT, anchor_x="right",
-                                      anchor_y="bottom", parent=scene_)
         self.dots = scene.Markers(parent=scene_)
         self.dots.set_data(np.zeros((1, 2), np.float32), size=0)
-        self.labels = scene.Text("", color=style.INK, font_size=LABEL_PT, anchor_x="center", anchor_y="bottom",
+        # Under the pan/zoom camera vispy's y anchors are flipped: "top" stands text on its position.
+        self.labels = scene.Text("", color=style.INK, font_size=LABEL_PT, anchor_x="center", anchor_y="top",
                                  parent=scene_)
         self.peak.order, self.trace.order, self.noise.order = 1, 2, 3
-        self.dots.order, self.labels.order, self.noise_label.order = 4, 5, 5
+        self.dots.order, self.labels.order = 4, 5
         self._frame: DisplayFrame | None = None
         self._noise_level: float | None = None
         self.listeners.append(self._relayout)
@@ -184,7 +197,9 @@ class SpectrumPlot(Plot):
             x = (LOG_MIN_HZ * 2 if self.log else 0.0, nyq)
         floor = frame.noise_floor_dbfs
         bottom = math.floor(((floor if floor is not None else -130.0) - 15.0) / 10.0) * 10.0
-        self.set_range(x=tuple(self.x_of(x)), y=(bottom, 15.0))
+        highest = max([m.level_dbfs for m in frame.markers] + [-20.0])
+        top = max(10.0, math.ceil((highest + 22.0) / 10.0) * 10.0)
+        self.set_range(x=tuple(self.x_of(x)), y=(bottom, top))
 
     # -- data ------------------------------------------------------------------------------------
 
@@ -202,10 +217,11 @@ class SpectrumPlot(Plot):
                 self.peak.visible = False
         self._noise_level = frame.noise_floor_dbfs
         if frame.noise_floor_dbfs is not None and frame.analysis_bandwidth_hz:
-            self.noise_label.text = (f"noise {frame.noise_floor_dbfs:.1f} dBFS in "
-                                     f"{frame.analysis_bandwidth_hz:.1f} Hz").replace("-", "\u2212")
+            self.legend.text = (f"- - -  noise floor {frame.noise_floor_dbfs:.1f} dBFS in "
+                                f"{frame.analysis_bandwidth_hz:.1f} Hz (analysis bandwidth)"
+                                ).replace("-", "\u2212").replace("\u2212 \u2212 \u2212", "- - -")
         else:
-            self.noise_label.text = ""
+            self.legend.text = ""
         self._relayout()
 
     def _relayout(self) -> None:
@@ -215,11 +231,8 @@ class SpectrumPlot(Plot):
         if self._noise_level is not None:
             self.noise.set_data(dashed_hline(r.left, r.right, self._noise_level, 6 * px))
             self.noise.visible = True
-            self.noise_label.pos = (r.right - 8 * px, self._noise_level + 3 * py)
-            self.noise_label.visible = True
         else:
             self.noise.visible = False
-            self.noise_label.visible = False
         frame = self._frame
         markers = frame.markers if frame is not None else ()
         if not markers:
@@ -233,7 +246,9 @@ class SpectrumPlot(Plot):
         self.dots.set_data(np.column_stack((xs, ys)).astype(np.float32), size=9, face_color=face,
                            edge_color=edge, edge_width=1.5, symbol="o")
         self.dots.visible = True
-        texts, positions, colours = place_labels(markers, xs, ys, r, self.view.size, LABEL_PT)
+        trace_x = self.x_of(frame.frequencies_hz) if frame.frequencies_hz is not None else None
+        texts, positions, colours = place_labels(markers, xs, ys, r, self.view.size, LABEL_PT, trace_x,
+                                                 frame.level_dbfs)
         if texts:
             self.labels.text = texts
             self.labels.pos = positions
@@ -243,59 +258,80 @@ class SpectrumPlot(Plot):
             self.labels.visible = False
 
 
-def place_labels(markers, xs, ys, rect, size_px, font_pt: float):
-    """Put each marker's label above it, clear of other labels and of taller peaks nearby.
+def place_labels(markers, xs, ys, rect, size_px, font_pt: float, trace_x=None, trace_y=None, reserved=()):
+    """Put each marker's label above it, clear of the other labels and of the trace beneath.
 
-    Works in pixels (top-left origin) and returns data positions of each label's bottom centre.
+    Works in pixels (top-left origin); returns the data positions of each label's bottom centre.
     """
     w_px, h_px = float(size_px[0]), float(size_px[1])
     if rect.width == 0 or rect.height == 0 or w_px < 10 or h_px < 10:
         return [], np.zeros((0, 2), np.float32), []
 
-    def to_px(x, y):
-        return (x - rect.left) / rect.width * w_px, (rect.top - y) / rect.height * h_px
+    def y_px(level: float) -> float:
+        return (rect.top - level) / rect.height * h_px
+
+    def trace_top(x0: float, x1: float) -> float:
+        """Highest point of the trace between two pixel columns, as a pixel row."""
+        if trace_x is None or trace_y is None or len(trace_x) == 0:
+            return h_px
+        d0 = rect.left + x0 / w_px * rect.width
+        d1 = rect.left + x1 / w_px * rect.width
+        i0, i1 = np.searchsorted(trace_x, [d0, d1])
+        i0, i1 = max(0, i0 - 1), min(len(trace_y), i1 + 1)
+        if i1 <= i0:
+            return h_px
+        return y_px(float(np.max(trace_y[i0:i1])))
 
     font_px = font_pt * 96.0 / 72.0
-    line_px = font_px * 1.25
-    peaks = [to_px(x, y) for x, y in zip(xs, ys)]
-    obstacles = [(px - 5, py - 6, px + 5, h_px) for px, py in peaks]  # each peak's column
-    placed: list[tuple[float, float, float, float]] = []
+    line_px = font_px * 1.3
+    peaks = [((x - rect.left) / rect.width * w_px, y_px(y)) for x, y in zip(xs, ys)]
+    placed: list[tuple[float, float, float, float]] = list(reserved)
     order = sorted(range(len(markers)), key=lambda i: ys[i], reverse=True)  # tallest first
     out: dict[int, tuple[float, float]] = {}
 
     def clashes(box):
-        return [b for b in placed + obstacles if box[0] < b[2] and box[2] > b[0] and box[1] < b[3] and box[3] > b[1]]
+        return [b for b in placed if box[0] < b[2] and box[2] > b[0] and box[1] < b[3] and box[3] > b[1]]
 
     for i in order:
         text = markers[i].label
         if not text:
             continue
         lines = text.split("\n")
-        width = max(len(s) for s in lines) * font_px * 0.58 + 6
-        height = len(lines) * line_px + 2
+        width = max(len(s) for s in lines) * font_px * 0.6 + 8
+        height = len(lines) * line_px + 4
         px, py = peaks[i]
-        if px < -width or px > w_px + width:
+        if px < 0 or px > w_px:
             continue  # off screen
         best = None
-        for dx in (0.0, width / 2 + 8, -(width / 2 + 8)):
+        for dx in (0.0, width / 2 + 6, -(width / 2 + 6)):
             cx = min(max(px + dx, width / 2 + 2), w_px - width / 2 - 2)
-            bottom = min(py - 10, h_px - 2)
-            for _ in range(60):
-                box = (cx - width / 2, bottom - height, cx + width / 2, bottom)
-                own = (px - 5, py - 6, px + 5, h_px)
-                hits = [b for b in clashes(box) if b != own]
+            bottom = min(py - 9, trace_top(cx - width / 2, cx + width / 2) - 4)
+            box = (cx - width / 2, bottom - height, cx + width / 2, bottom)
+            for _ in range(40):
+                hits = clashes(box)
                 if not hits:
                     break
                 bottom = min(b[1] for b in hits) - 3
+                box = (cx - width / 2, bottom - height, cx + width / 2, bottom)
             if box[1] < 2:
                 continue
-            if best is None or box[3] > best[3]:
+            if best is None or box[3] > best[3] + 0.5 * line_px:  # prefer centred unless much lower
                 best = box
-        if best is None:  # no clear spot: as high as it goes, right above the peak
+        if best is None:  # no room above: beside the peak, right or left, clear of the trace
+            for side in (1, -1):
+                x0 = px + 10 if side > 0 else px - 10 - width
+                if x0 < 2 or x0 + width > w_px - 2:
+                    continue
+                top = max(2.0, py - height / 2)
+                box = (x0, top, x0 + width, top + height)
+                if box[3] <= trace_top(box[0], box[2]) - 2 and not clashes(box):
+                    best = box
+                    break
+        if best is None:  # nowhere clear: as high as it goes
             cx = min(max(px, width / 2 + 2), w_px - width / 2 - 2)
             best = (cx - width / 2, 2, cx + width / 2, 2 + height)
         placed.append(best)
-        out[i] = ((best[0] + best[2]) / 2, best[3])
+        out[i] = ((best[0] + best[2]) / 2, best[3] - 2)
     texts, positions, colours = [], [], []
     for i, (cx, bottom) in out.items():
         texts.append(markers[i].label)
@@ -308,8 +344,8 @@ class WaveformPlot(Plot):
     """A few milliseconds of the captured audio and its envelope (|analytic signal|)."""
 
     def __init__(self, grid, row: int, col: int) -> None:
-        super().__init__(grid, row, col, "Waveform and envelope", "time, ms", "FS", value_ticks(5),
-                         value_ticks(4), y_axis_width=52)
+        super().__init__(grid, row, col, "Waveform and envelope", "time, ms", "amplitude, FS", value_ticks(5),
+                         value_ticks(4), y_axis_width=62)
         s = self.view.scene
         self.waves = [scene.Line(np.zeros((2, 2), np.float32), color=c, width=1, method="gl", antialias=False,
                                  parent=s) for c in ("#8a9aa8", "#c2a86a")]
@@ -352,7 +388,7 @@ class PatternPlot(Plot):
                                 method="gl", antialias=False, parent=s)
         self.points = scene.Markers(parent=s)
         self.points.set_data(np.zeros((1, 2), np.float32), size=0)
-        self.note = scene.Text("", color=style.INK_SOFT, font_size=LABEL_PT, anchor_x="left", anchor_y="top",
+        self.note = scene.Text("", color=style.INK_SOFT, font_size=LABEL_PT, anchor_x="left", anchor_y="bottom",
                                parent=s)
         self._scale = 1.0
         self.set_range(x=(0, 1), y=(0, 1))
@@ -370,12 +406,16 @@ class PatternPlot(Plot):
             self.set_range(x=(0, top), y=(0, top))
         self.ideal.set_data(dashed_segment((0.0, 0.0), (self._scale, self._scale)))
         self.ideal.visible = True
-        colour = _rgba(style.IMD, 0.55)
-        self.points.set_data(np.column_stack((frame.drive, frame.measured)), size=3, face_color=colour,
+        if len(frame.pattern_tones_hz) < 2:
+            self.note.text = "one tone: a steady envelope (use Two-tone for linearity)"
+            self.note.pos = (0.03 * self._scale, 0.97 * self._scale)
+        colour = _rgba(style.IMD, 0.8)
+        self.points.set_data(np.column_stack((frame.drive, frame.measured)), size=5, face_color=colour,
                              edge_width=0, symbol="disc")
         self.points.visible = True
-        self.note.text = "dashed: linear (measured = drive)"
-        self.note.pos = (0.03 * self._scale, 0.97 * self._scale)
+        if len(frame.pattern_tones_hz) >= 2:
+            self.note.text = "dashed: linear (measured = drive)"
+            self.note.pos = (0.03 * self._scale, 0.97 * self._scale)
 
 
 class TrendPlot(Plot):
@@ -392,7 +432,7 @@ class TrendPlot(Plot):
         self.best_line = scene.Line(np.zeros((2, 2), np.float32), color=style.BEST, width=1.5,
                                     connect="segments", method="gl", antialias=False, parent=s)
         self.best_label = scene.Text("", color=style.BEST, font_size=LABEL_PT, anchor_x="left",
-                                     anchor_y="bottom", parent=s)
+                                     anchor_y="top", parent=s)
         self._y = (0.0, 1.0)
         self.set_range(x=(-self.seconds, 0), y=self._y)
 
@@ -456,7 +496,7 @@ class PlotCanvas:
 
     def __init__(self, parent=None) -> None:
         self.canvas = scene.SceneCanvas(keys=None, bgcolor=style.PAPER, parent=parent, show=False)
-        self.grid = self.canvas.central_widget.add_grid(spacing=6, margin=6)
+        self.grid = self.canvas.central_widget.add_grid(spacing=14, margin=6)
         self.plots: list[Plot] = []
         self.canvas.events.resize.connect(self._resized)
         self.last_draw = time.perf_counter()
@@ -479,3 +519,29 @@ class PlotCanvas:
 
     def update(self) -> None:
         self.canvas.update()
+
+    def share_fonts(self) -> int:
+        """Give every text in the canvas one font manager, so each glyph is rendered once.
+
+        vispy gives each text visual (every axis has two) its own, and renders each glyph's
+        distance field on the CPU for each of them: seconds at start-up under software OpenGL.
+        """
+        fonts = FontManager(method="cpu")
+        count = 0
+        for visual in _text_visuals(self.canvas.scene, set()):
+            visual._font_manager = fonts
+            visual._update_font()
+            count += 1
+        return count
+
+
+def _text_visuals(node, seen: set):
+    if id(node) in seen:
+        return
+    seen.add(id(node))
+    if isinstance(node, TextVisual):
+        yield node
+    for sub in getattr(node, "_subvisuals", ()):
+        yield from _text_visuals(sub, seen)
+    for child in getattr(node, "children", ()):
+        yield from _text_visuals(child, seen)

@@ -164,14 +164,13 @@ class SessionRunner(QObject):
         if engine is None:
             return
         newest = None
-        now = time.monotonic()
         while True:
             try:
                 newest = engine.readouts.get_nowait()
             except queue.Empty:
                 break
             if newest.result is not None or newest.error not in ("waiting for audio",):
-                self._arrivals.append(now)
+                self._arrivals.append(newest.t)  # the engine's own clock: the rate it makes them at
         if newest is not None:
             self.readout.emit(newest)
         prep = self.prep
@@ -183,6 +182,7 @@ class SessionRunner(QObject):
     def readouts_per_second(self) -> float:
         """Readouts that arrived over the last two seconds, per second."""
         now = time.monotonic()
-        recent = sum(1 for t in self._arrivals if now - t <= 2.0)
-        window = min(2.0, now - self._started_at)
-        return recent / window if window >= 0.5 else 0.0
+        recent = [t for t in self._arrivals if now - t <= 2.0]
+        if len(recent) < 2:
+            return 0.0
+        return (len(recent) - 1) / (recent[-1] - recent[0]) if recent[-1] > recent[0] else 0.0

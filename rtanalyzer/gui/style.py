@@ -32,9 +32,9 @@ ALARM = "#d84315"  # clip light
 
 ROLE_COLOURS = {"carrier": CARRIER, "wanted": WANTED, "unwanted": UNWANTED, "imd": IMD, "noise": NOISE}
 
-VALUE_PT = 40  # large readouts, readable across the bench (at least 28 pt)
-UNIT_PT = 20
-TITLE_PT = 13
+VALUE_PT = 38  # large readouts, readable across the bench (at least 28 pt)
+UNIT_PT = 18
+TITLE_PT = 12
 SMALL_PT = 10
 
 STYLE_SHEET = f"""

@@ -85,21 +85,23 @@ class ReadoutTile(QFrame):
         self.unit_label.setFont(_font(style.UNIT_PT))
         self.unit_label.setAlignment(Qt.AlignmentFlag.AlignLeft | Qt.AlignmentFlag.AlignBaseline)
         self.change_label = QLabel("")
-        self.change_label.setFont(_font(15, QFont.Weight.DemiBold))
+        self.change_label.setFont(_font(14, QFont.Weight.DemiBold))
         self.change_label.setAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
-        self.change_label.setMinimumWidth(96)
         self.detail_label = QLabel("")
+        self.detail_label.setWordWrap(True)
+        self.detail_label.setMinimumHeight(36)
+        self.detail_label.setAlignment(Qt.AlignmentFlag.AlignLeft | Qt.AlignmentFlag.AlignTop)
         self.detail_label.setFont(_font(style.SMALL_PT + 1))
         self.detail_label.setStyleSheet(f"color: {style.INK_SOFT};")
-        layout.addWidget(self.title_label, 0, 0, 1, 3)
+        layout.addWidget(self.title_label, 0, 0)
+        layout.addWidget(self.change_label, 0, 1, 2, 1, Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignTop)
         value_row = QHBoxLayout()
         value_row.setSpacing(8)
         value_row.addWidget(self.value_label, 0, Qt.AlignmentFlag.AlignBaseline)
         value_row.addWidget(self.unit_label, 0, Qt.AlignmentFlag.AlignBaseline)
         value_row.addStretch(1)
         layout.addLayout(value_row, 1, 0, 1, 2)
-        layout.addWidget(self.change_label, 1, 2)
-        layout.addWidget(self.detail_label, 2, 0, 1, 3)
+        layout.addWidget(self.detail_label, 2, 0, 1, 2)
         self.value: float | None = None
         self.set_unavailable("waiting for the first readout")
 
@@ -204,7 +206,7 @@ class MetersTile(QFrame):
         super().__init__(parent)
         self.setObjectName("tile")
         self.setSizePolicy(QSizePolicy.Policy.Preferred, QSizePolicy.Policy.Fixed)
-        self.setMinimumWidth(300)
+        self.setMinimumWidth(250)
         self._layout = QVBoxLayout(self)
         self._layout.setContentsMargins(12, 8, 12, 8)
         self._layout.setSpacing(3)
@@ -218,6 +220,7 @@ class MetersTile(QFrame):
         self.xrun_label = QLabel("")
         self.xrun_label.setObjectName("xruns")
         self.xrun_label.setFont(_font(style.SMALL_PT))
+        self.xrun_label.setWordWrap(True)
         self._layout.addWidget(self.xrun_label)
         self.rows: list[tuple[MeterBar, QLabel, ClipLight]] = []
         self.set_channels(1)
@@ -274,7 +277,7 @@ class MetersTile(QFrame):
         dropped = xruns.get("dropped_blocks", 0)
         colour = style.WORSE if (over or under or dropped) else style.INK_SOFT
         self.xrun_label.setStyleSheet(f"color: {colour};")
-        self.xrun_label.setText(f"overflows {over} · underflows {under} · dropped blocks {dropped}")
+        self.xrun_label.setText(f"overflows {over} · underflows {under} · dropped {dropped}")
 
 
 class Banner(QLabel):

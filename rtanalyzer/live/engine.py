@@ -251,6 +251,7 @@ class LiveEngine:
         try:
             kwargs = {"spectrum": spectrum} if self._takes_spectrum else {}
             result = self.measurement.measure(signal, settings, **kwargs).to_json()
+            result.setdefault("calibration", [])  # every result names its calibration; live applies none
         except RtaError as exc:
             error = str(exc)
         if result is not None and self.best is not None:

@@ -1,0 +1,746 @@
+"""The main window: large figures across the top, the plots, the controls on the right.
+
+The window holds the wanted :class:`~rtanalyzer.live.session.SessionConfig` and applies each
+control change the cheapest way that is correct: bench knobs, a new test tone on the bench and
+the carrier offset go to the running session; a change of source, rate, I/Q, measurement or
+averaging rebuilds it (with a busy indication).
+"""
+
+from __future__ import annotations
+
+import csv
+import json
+import math
+import time
+from datetime import datetime
+from pathlib import Path
+from typing import Any
+
+from PyQt6.QtCore import Qt, QTimer, pyqtSignal
+from PyQt6.QtGui import QAction, QKeySequence
+from PyQt6.QtWidgets import (
+    QApplication,
+    QCheckBox,
+    QDockWidget,
+    QFileDialog,
+    QHBoxLayout,
+    QLabel,
+    QMainWindow,
+    QMessageBox,
+    QProgressBar,
+    QPushButton,
+    QScrollArea,
+    QVBoxLayout,
+    QWidget,
+)
+
+from rtanalyzer.cli.cautions import config_dir
+from rtanalyzer.errors import RtaError
+from rtanalyzer.gui import style
+from rtanalyzer.gui.choices import GeneratorChoice
+from rtanalyzer.gui.controls import ControlsPanel
+from rtanalyzer.gui.dialogs import cautions_dialog, shortcuts_dialog, truth_text, TextDialog
+from rtanalyzer.gui.frames import DisplayFrame
+from rtanalyzer.gui.plots import PatternPlot, PlotCanvas, SpectrumPlot, TrendPlot, WaveformPlot
+from rtanalyzer.gui.runner import SessionRunner
+from rtanalyzer.gui.settings import WindowSettings
+from rtanalyzer.gui.widgets import Banner, MetersTile, ReadoutTile, signed
+from rtanalyzer.live.session import SessionConfig, plan_settings
+from rtanalyzer.sources.bench.knobs import BenchKnobs
+
+MUTED_CAPTURE_DBFS = -120.0  # a muted generator on the bench: the receiver hears only noise
+STATUS_MS = 500
+
+FIGURES = {
+    "sideband": ("sideband suppression", "dB"),
+    "twotone": ("worst IMD", "dB PEP"),
+}
+
+
+def flatten(value: Any, prefix: str = "") -> list[tuple[str, Any]]:
+    """JSON-like nesting as (dotted key, value) rows, lists indexed: ``points[0].wanted_dbfs``."""
+    rows: list[tuple[str, Any]] = []
+    if isinstance(value, dict):
+        for k, v in value.items():
+            rows += flatten(v, f"{prefix}.{k}" if prefix else str(k))
+    elif isinstance(value, (list, tuple)):
+        if value and all(not isinstance(v, (dict, list, tuple)) for v in value):
+            for i, v in enumerate(value):
+                rows.append((f"{prefix}[{i}]", v))
+        else:
+            for i, v in enumerate(value):
+                rows += flatten(v, f"{prefix}[{i}]")
+    else:
+        rows.append((prefix, value))
+    return rows
+
+
+def unit_of(key: str) -> str:
+    leaf = key.split(".")[-1].split("[")[0]
+    for suffix, unit in (("_db_pep", "dB PEP"), ("_dbfs", "dBFS"), ("_dbc", "dBc"), ("_db", "dB"),
+                         ("_hz", "Hz"), ("_s", "s")):
+        if leaf.endswith(suffix):
+            return unit
+    return ""
+
+
+class MainWindow(QMainWindow):
+    """The live window. ``closed`` is emitted once it has stopped its session."""
+
+    closed = pyqtSignal()
+
+    def __init__(self, config: SessionConfig, generator: GeneratorChoice, settings: WindowSettings,
+                 banner: str | None = None) -> None:
+        super().__init__()
+        self.setWindowTitle("rtanalyzer — live")
+        self.setStyleSheet(style.STYLE_SHEET)
+        self.settings = settings
+        self.config = config
+        self.generator = generator
+        self.muted = False
+        self.last_readout = None
+        self.last_frame: DisplayFrame | None = None
+        self._fit_pending = True
+        self._figure_key: str | None = None
+        self._closing = False
+        self._readout_count = 0
+        self.runner = SessionRunner(self)
+        self._build_ui()
+        self._build_menus()
+        self.runner.readout.connect(self.show_readout)
+        self.runner.frame.connect(self.show_frame)
+        self.runner.busy.connect(self._busy)
+        self.runner.started.connect(self._started)
+        self.runner.failed.connect(self._failed)
+        self.controls.changed.connect(self._control_changed)
+        self.controls.refresh_devices_button.clicked.connect(self.refresh_devices)
+        log, hold = settings.view()
+        self.log_box.setChecked(log)
+        self.hold_box.setChecked(hold)
+        self.runner.set_peak_hold(hold)
+        self.refresh_devices()
+        self._show_config()
+        self.banner.say(banner)
+        geometry, state = settings.window()
+        if geometry is not None:
+            self.restoreGeometry(geometry)
+        else:
+            self.resize(1600, 1000)
+        if state is not None:
+            self.restoreState(state)
+        self.status_timer = QTimer(self)
+        self.status_timer.setInterval(STATUS_MS)
+        self.status_timer.timeout.connect(self._update_status)
+        self.status_timer.start()
+        self.cautions = None
+        self.runner.start(self._effective(config))
+
+    # -- building -------------------------------------------------------------------------------------
+
+    def _build_ui(self) -> None:
+        central = QWidget()
+        outer = QVBoxLayout(central)
+        outer.setContentsMargins(10, 8, 10, 4)
+        outer.setSpacing(6)
+        self.banner = Banner()
+        outer.addWidget(self.banner)
+        tiles = QHBoxLayout()
+        tiles.setSpacing(8)
+        self.tiles = {
+            "sideband": ReadoutTile("sideband", "Opposite-sideband suppression", "dB", True),
+            "carrier": ReadoutTile("carrier", "Carrier suppression", "dBc", True),
+            "imd": ReadoutTile("imd", "Worst IMD (two-tone)", "dB PEP", False),
+        }
+        for tile in self.tiles.values():
+            tiles.addWidget(tile, 3)
+        self.meters = MetersTile()
+        tiles.addWidget(self.meters, 2)
+        outer.addLayout(tiles)
+        self.message = QLabel("")
+        self.message.setObjectName("message")
+        self.message.setWordWrap(True)
+        self.message.setStyleSheet(f"color: {style.INK_SOFT};")
+        outer.addWidget(self.message)
+        bar = QHBoxLayout()
+        self.log_box = QCheckBox("Log frequency  (L)")
+        self.log_box.toggled.connect(self._log_toggled)
+        self.hold_box = QCheckBox("Peak hold  (P)")
+        self.hold_box.toggled.connect(self._hold_toggled)
+        reset_hold = QPushButton("Clear peak hold")
+        reset_hold.clicked.connect(self.runner.reset_peak)
+        fit = QPushButton("Frame the plan  (F)")
+        fit.clicked.connect(self.fit_spectrum)
+        hint = QLabel("drag to pan · wheel to zoom")
+        hint.setStyleSheet(f"color: {style.INK_SOFT};")
+        for w in (self.log_box, self.hold_box, reset_hold, fit):
+            bar.addWidget(w)
+        bar.addStretch(1)
+        bar.addWidget(hint)
+        outer.addLayout(bar)
+        self.plots = PlotCanvas(central)
+        grid = self.plots.grid
+        self.spectrum = self.plots.add(SpectrumPlot(grid, 0, 0, col_span=3))  # over the three below
+        self.waveform = self.plots.add(WaveformPlot(grid, 1, 0))
+        self.pattern = self.plots.add(PatternPlot(grid, 1, 1))
+        self.trend = self.plots.add(TrendPlot(grid, 1, 2))
+        self.plots.share_fonts()
+        self.plots.native.setMinimumHeight(520)
+        outer.addWidget(self.plots.native, 1)
+        self.setCentralWidget(central)
+
+        self.controls = ControlsPanel()
+        scroll = QScrollArea()
+        scroll.setWidget(self.controls)
+        scroll.setWidgetResizable(True)
+        scroll.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
+        scroll.setMinimumWidth(340)
+        self.dock = QDockWidget("Controls", self)
+        self.dock.setObjectName("controls_dock")
+        self.dock.setWidget(scroll)
+        self.dock.setFeatures(QDockWidget.DockWidgetFeature.DockWidgetMovable
+                              | QDockWidget.DockWidgetFeature.DockWidgetFloatable)
+        self.addDockWidget(Qt.DockWidgetArea.RightDockWidgetArea, self.dock)
+
+        status = self.statusBar()
+        self.source_label = QLabel("")
+        self.rate_label = QLabel("")
+        self.updates_label = QLabel("")
+        self.updates_label.setObjectName("updates")
+        self.xrun_status = QLabel("")
+        self.paused_label = QLabel("")
+        self.busy_bar = QProgressBar()
+        self.busy_bar.setRange(0, 0)
+        self.busy_bar.setMaximumWidth(140)
+        self.busy_bar.setMaximumHeight(14)
+        self.busy_bar.hide()
+        for w in (self.busy_bar, self.paused_label, self.source_label, self.rate_label, self.updates_label,
+                  self.xrun_status):
+            status.addPermanentWidget(w)
+
+    def _build_menus(self) -> None:
+        menu = self.menuBar()
+
+        def action(text: str, slot, shortcut: str | None = None, checkable: bool = False, name: str = "") -> QAction:
+            act = QAction(text, self)
+            if shortcut:
+                act.setShortcut(QKeySequence(shortcut))
+                act.setShortcutContext(Qt.ShortcutContext.WindowShortcut)
+            act.setCheckable(checkable)
+            if checkable:
+                act.toggled.connect(slot)
+            else:
+                act.triggered.connect(lambda _=False: slot())
+            if name:
+                act.setObjectName(name)
+            self.addAction(act)
+            return act
+
+        file_menu = menu.addMenu("&File")
+        file_menu.addAction(action("Snapshot (picture and figures)", self.snapshot, "S", name="act_snapshot"))
+        file_menu.addSeparator()
+        file_menu.addAction(action("Export window as PNG…", self._export_png_dialog, "Ctrl+E"))
+        file_menu.addAction(action("Export figures as CSV…", lambda: self._export_dialog("csv")))
+        file_menu.addAction(action("Export figures as JSON…", lambda: self._export_dialog("json")))
+        file_menu.addSeparator()
+        file_menu.addAction(action("Quit", self.close, "Ctrl+Q"))
+        run_menu = menu.addMenu("&Run")
+        self.pause_action = action("Pause readouts", self.set_paused, "Space", checkable=True, name="act_pause")
+        run_menu.addAction(self.pause_action)
+        run_menu.addAction(action("Best so far: start again", self.reset_best, "B", name="act_reset_best"))
+        self.mute_action = action("Mute generator", self._mute_from_menu, "M", checkable=True, name="act_mute")
+        run_menu.addAction(self.mute_action)
+        view_menu = menu.addMenu("&View")
+        view_menu.addAction(action("Frame the plan", self.fit_spectrum, "F"))
+        view_menu.addAction(action("Log / linear frequency", lambda: self.log_box.toggle(), "L"))
+        view_menu.addAction(action("Peak hold on / off", lambda: self.hold_box.toggle(), "P"))
+        view_menu.addAction(self.dock.toggleViewAction())
+        help_menu = menu.addMenu("&Help")
+        help_menu.addAction(action("Safety cautions", self.show_cautions, "F1"))
+        help_menu.addAction(action("Keyboard shortcuts", lambda: self._keep(shortcuts_dialog(self))))
+        help_menu.addAction(action("Bench truth (simulated bench)", self.show_truth))
+
+    def _keep(self, dialog) -> None:
+        self._dialog = dialog
+        dialog.show()
+
+    # -- config -> panel ------------------------------------------------------------------------------
+
+    def _show_config(self) -> None:
+        c = self.config
+        self.controls.set_state(
+            source=c.source or "sim", rate=c.rate_hz, file=c.file, loop=c.loop, carrier_hz=c.carrier_hz,
+            carrier_default=c.knobs.carrier_offset_hz if c.source == "sim" else None, wanted=c.wanted,
+            iq=c.iq, channel=c.channel, tones=c.tones_hz, measurement=c.measurement, averages=c.averages,
+            muted=self.muted)
+        self.controls.set_knobs(c.knobs)
+        self.controls.set_generator(self.generator)
+
+    def _effective(self, config: SessionConfig) -> SessionConfig:
+        """Keep ``config`` (with the generator's signal; none for a file) and return what to build:
+        on the bench, the I/Q choice and the mute applied to its knobs."""
+        signal = None
+        if config.source != "file":
+            try:
+                signal = self.generator.signal()
+            except Exception as exc:
+                self._generator_problem(str(exc))
+                signal = config.signal
+        knobs = config.knobs.with_changes(iq=config.iq) if config.source == "sim" else config.knobs
+        self.config = config.with_changes(signal=signal, knobs=knobs)
+        built = self.config
+        if built.source == "sim" and self.muted:
+            built = built.with_changes(knobs=knobs.with_changes(capture_pep_dbfs=MUTED_CAPTURE_DBFS))
+        return built
+
+    def rebuild(self) -> None:
+        """Stop the session and start one for the current config."""
+        self._fit_pending = True
+        self.trend.clear()
+        for tile in self.tiles.values():
+            tile.tracker.reset()
+        self.runner.start(self._effective(self.config))
+
+    # -- control changes ------------------------------------------------------------------------------
+
+    def _control_changed(self, what: str) -> None:
+        try:
+            getattr(self, f"_changed_{what}")()
+        except RtaError as exc:
+            self.statusBar().showMessage(str(exc), 8000)
+
+    def _changed_source(self) -> None:
+        kind = self.controls.source.currentData()
+        self.controls.show_source(kind)
+        self.config = self.config.with_changes(source=kind)
+        if kind == "file" and not self.config.file:
+            self.banner.say("Choose a WAV or FLAC capture under Source ▸ File, and say which tones it holds "
+                            "under Frequency plan.")
+            self.runner.timer.stop()
+            return
+        self.banner.say(None)
+        if kind == "sim":
+            self.controls.set_knobs(self.config.knobs)
+        self.rebuild()
+
+    def _changed_devices(self) -> None:
+        c = self.controls
+        self.config = self.config.with_changes(input_device=c.input_device.currentData(),
+                                               output_device=c.output_device.currentData(),
+                                               rate_hz=int(c.rate.currentData()))
+        if self.config.source in ("device", "sim"):
+            self.rebuild()
+
+    def _changed_file(self) -> None:
+        path = self.controls.file_path.text().strip() or None
+        self.config = self.config.with_changes(file=path, loop=self.controls.loop.isChecked())
+        if self.config.source == "file" and path:
+            if not self.config.tones_hz and not self.config.signal:
+                self.banner.say("Say which tones the recording holds under Frequency plan ▸ Tones in it.")
+            else:
+                self.banner.say(None)
+            self.rebuild()
+
+    def _changed_knobs(self) -> None:
+        knobs = self.config.knobs.with_changes(**self.controls.knob_values())
+        self.config = self.config.with_changes(knobs=knobs)
+        self._apply_bench_knobs()
+
+    def _apply_bench_knobs(self) -> None:
+        engine = self.runner.engine
+        if self.config.source != "sim" or engine is None or not hasattr(engine.source, "set_knobs"):
+            return
+        knobs = self.config.knobs.with_changes(iq=engine.source.knobs.iq)
+        if self.muted:
+            knobs = knobs.with_changes(capture_pep_dbfs=MUTED_CAPTURE_DBFS)
+        engine.source.set_knobs(knobs)
+
+    def _generator_problem(self, text: str | None) -> None:
+        note = self.controls.generator_note
+        if text:
+            note.setText(text)
+            note.setStyleSheet(f"color: {style.WORSE};")
+        else:
+            note.setText("")
+            note.setStyleSheet(f"color: {style.INK_SOFT};")
+
+    def _changed_generator(self) -> None:
+        choice = self.controls.generator_choice(self.generator)
+        try:
+            signal = choice.signal()
+            if self.config.source != "file":
+                from rtanalyzer.generator.generator import Generator
+
+                Generator(signal, self.config.rate_hz)  # checks Nyquist at this rate
+        except Exception as exc:
+            self._generator_problem(str(exc))
+            return
+        self._generator_problem(None)
+        self.generator = choice
+        before = self.config.measurement_name
+        self.config = self.config.with_changes(signal=signal)
+        engine = self.runner.engine
+        if self.config.measurement_name != before or engine is None or self.runner.rebuilding:
+            self.rebuild()
+        elif self.config.source == "sim" and hasattr(engine.source, "set_signal"):
+            try:
+                engine.source.set_signal(signal)
+            except Exception as exc:
+                self._generator_problem(str(exc))
+                return
+            self._fit_pending = True
+            self.trend.clear()
+        elif self.config.source == "device":
+            self.rebuild()
+
+    def _changed_mute(self) -> None:
+        self.set_muted(self.controls.mute.isChecked())
+
+    def _changed_plan(self) -> None:
+        carrier, wanted = self.controls.plan()
+        self.config = self.config.with_changes(carrier_hz=carrier, wanted=None if wanted == "auto" else wanted)
+        engine = self.runner.engine
+        if engine is None:
+            return
+        settings = plan_settings(self.config, engine.measurement.name)
+        engine.update_settings(carrier=settings["carrier"], wanted=settings["wanted"])
+        self._fit_pending = True
+
+    def _changed_view(self) -> None:
+        iq, channel = self.controls.input_choice()
+        self.config = self.config.with_changes(iq=iq, channel=channel)
+        self.rebuild()
+
+    def _changed_tones(self) -> None:
+        self.config = self.config.with_changes(tones_hz=self.controls.tones())
+        if self.config.source == "file":
+            self.banner.say(None)
+            self.rebuild()
+
+    def _changed_measurement(self) -> None:
+        self.config = self.config.with_changes(measurement=self.controls.measurement.currentData())
+        self.rebuild()
+
+    def _changed_averages(self) -> None:
+        self.config = self.config.with_changes(averages=int(self.controls.averages.value()))
+        self.rebuild()
+
+    # -- actions --------------------------------------------------------------------------------------
+
+    def set_paused(self, paused: bool) -> None:
+        self.runner.set_paused(paused)
+        if self.pause_action.isChecked() != paused:
+            self.pause_action.setChecked(paused)
+        self.paused_label.setText("PAUSED (Space runs)" if paused else "")
+        self.paused_label.setStyleSheet(f"color: {style.WORSE}; font-weight: 700;" if paused else "")
+
+    def reset_best(self) -> None:
+        self.runner.reset_best()
+        self.statusBar().showMessage("Best so far starts again from the present figure.", 3000)
+
+    def _mute_from_menu(self, muted: bool) -> None:
+        if self.controls.mute.isChecked() != muted:
+            self.controls.mute.setChecked(muted)  # emits "mute"
+        else:
+            self.set_muted(muted)
+
+    def set_muted(self, muted: bool) -> None:
+        self.muted = muted
+        if self.mute_action.isChecked() != muted:
+            self.mute_action.blockSignals(True)
+            self.mute_action.setChecked(muted)
+            self.mute_action.blockSignals(False)
+        if self.controls.mute.isChecked() != muted:
+            self.controls._quiet = True
+            self.controls.mute.setChecked(muted)
+            self.controls._quiet = False
+        engine = self.runner.engine
+        if engine is not None:
+            source = engine.source
+            if self.config.source == "sim":
+                self._apply_bench_knobs()
+            elif hasattr(source, "mute"):
+                (source.mute if muted else source.unmute)()
+        self.statusBar().showMessage("Generator muted." if muted else "Generator playing.", 3000)
+
+    def fit_spectrum(self) -> None:
+        if self.last_frame is not None:
+            self.spectrum.fit(self.last_frame)
+            self.plots.update()
+        else:
+            self._fit_pending = True
+
+    def _log_toggled(self, on: bool) -> None:
+        if on and self.config.iq:
+            self.log_box.blockSignals(True)
+            self.log_box.setChecked(False)
+            self.log_box.blockSignals(False)
+            self.statusBar().showMessage("An I/Q spectrum has negative frequencies: it stays linear.", 5000)
+            return
+        nyq = self.config.rate_hz / 2.0
+        self.spectrum.set_log(on, nyq)
+        if self.last_frame is not None:
+            self.spectrum.fit(self.last_frame)
+        self.plots.update()
+
+    def _hold_toggled(self, on: bool) -> None:
+        self.runner.set_peak_hold(on)
+
+    def show_cautions(self, first_time: bool = False) -> None:
+        if self.cautions is None:
+            self.cautions = cautions_dialog(self, first_time)
+        self.cautions.show()
+        self.cautions.raise_()
+
+    def show_truth(self) -> None:
+        engine = self.runner.engine
+        if engine is None or not hasattr(engine.source, "truth"):
+            QMessageBox.information(self, "rtanalyzer", "The bench's truth exists only for the simulated bench.")
+            return
+        self._keep(TextDialog("rtanalyzer — bench truth", "What the simulated bench holds, exactly",
+                              truth_text(engine.source.truth()), self))
+
+    def refresh_devices(self) -> None:
+        inputs, outputs, note = [("default input", None)], [("default output", None)], ""
+        try:
+            try:
+                from rtanalyzer.sources.soundcard_devices import list_devices
+            except ImportError:
+                from rtanalyzer.sources.soundcard import list_devices
+            devices = list_devices()
+            inputs += [(f"{d['index']}: {d['name']}", d["index"]) for d in devices if d["max_input_channels"] > 0]
+            outputs += [(f"{d['index']}: {d['name']}", d["index"]) for d in devices if d["max_output_channels"] > 0]
+            if len(inputs) == 1:
+                inputs, note = [], "No sound input device found."
+        except Exception as exc:  # sounddevice or PortAudio missing, or no sound server
+            inputs, outputs = [], []
+            note = f"No sound devices: {exc}"
+        self.controls.set_devices(inputs, outputs, note)
+
+    # -- session events -------------------------------------------------------------------------------
+
+    def _busy(self, busy: bool, what: str) -> None:
+        self.busy_bar.setVisible(busy)
+        if busy:
+            self.statusBar().showMessage(f"Restarting the session: {self._describe()}…")
+            if QApplication.overrideCursor() is None:
+                QApplication.setOverrideCursor(Qt.CursorShape.BusyCursor)
+        else:
+            self.statusBar().clearMessage()
+            while QApplication.overrideCursor() is not None:
+                QApplication.restoreOverrideCursor()
+
+    def _describe(self) -> str:
+        names = {"sim": "simulated bench", "device": "sound card", "file": "recording"}
+        return names.get(self.config.source or "", "source")
+
+    def _started(self, engine) -> None:
+        self.meters.set_channels(engine.source.channels, self._channel_names(engine))
+        self._set_trend_figure(engine.measurement.name)
+        self._update_status()
+
+    def _failed(self, text: str) -> None:
+        if self.config.source != "sim":
+            self.banner.say(f"The {self._describe()} could not start ({text}). Showing the simulated bench "
+                            "instead; choose the source again once it is fixed.")
+            self.config = self.config.with_changes(source="sim")
+            self._show_config()
+            self.rebuild()
+        else:
+            self.banner.say(f"The session could not start: {text}")
+
+    def _channel_names(self, engine) -> list[str]:
+        if engine.iq:
+            return ["I", "Q"]
+        return [f"in {i + 1}" for i in range(engine.source.channels)]
+
+    def _set_trend_figure(self, measurement: str) -> None:
+        if measurement == self._figure_key:
+            return
+        self._figure_key = measurement
+        title, unit = FIGURES.get(measurement, ("Figure", "dB"))
+        self.trend.set_figure(f"Trend: {title}", unit)
+
+    # -- readouts -------------------------------------------------------------------------------------
+
+    def show_readout(self, readout) -> None:
+        self.last_readout = readout
+        self._readout_count += 1
+        self.meters.show_levels(readout.levels, readout.xruns,
+                                self._channel_names(self.runner.engine) if self.runner.engine else None)
+        result = readout.result
+        t = readout.t
+        if result is None:
+            if readout.error not in ("settling",):
+                for tile in self.tiles.values():
+                    tile.set_unavailable(readout.error or "no figures")
+            self.message.setText(f"No figures: {readout.error}" if readout.error else "")
+            self.message.setStyleSheet(f"color: {style.WORSE};")
+            return
+        measurement = readout.measurement
+        if measurement == "sideband":
+            self._sideband_tiles(t, result)
+        elif measurement == "twotone":
+            self._twotone_tiles(t, result)
+        notes = list(result.get("warnings") or [])
+        if result.get("clipped"):
+            notes.insert(0, "the input clipped: figures are not trustworthy")
+        if readout.sweep is not None:
+            notes.insert(0, f"sweep step {readout.sweep['step'] + 1} at {readout.sweep['frequency_hz']:g} Hz")
+        self.message.setText(" · ".join(notes))
+        self.message.setStyleSheet(f"color: {style.WORSE if result.get('clipped') else style.INK_SOFT};")
+        best = readout.best or {}
+        self.trend.add(t, best.get("value"))
+        unit = FIGURES.get(measurement, ("", "dB"))[1]
+        self.trend.redraw(t, best.get("best"), unit)
+
+    def _sideband_tiles(self, t: float, r: dict) -> None:
+        points = r.get("points") or []
+        worst = r.get("worst_sideband_suppression_db")
+        detail = ""
+        if points and worst is not None:
+            p = min(points, key=lambda q: q.get("sideband_suppression_db") or math.inf)
+            if p.get("unwanted_detected"):
+                detail = (f"at {p['tone_hz']:g} Hz · unwanted {signed(p['unwanted_dbfs'])} dBFS, "
+                          f"wanted {signed(p['wanted_dbfs'])} dBFS")
+            else:
+                detail = f"at {p['tone_hz']:g} Hz · unwanted under the noise"
+            if len(points) > 1:
+                detail = f"worst of {len(points)} tones, " + detail
+        self.tiles["sideband"].set_figure(t, worst, "≥" if r.get("worst_is_lower_bound") else "",
+                                          detail or "no wanted tone found")
+        carrier = r.get("carrier_suppression_db")
+        if r.get("carrier_detected"):
+            detail = f"carrier {signed(r['carrier_dbfs'])} dBFS at {r['carrier_hz']:.1f} Hz"
+        else:
+            detail = "carrier under the noise" + (f" near {r['carrier_hz']:.0f} Hz" if r.get("carrier_hz") else "")
+        self.tiles["carrier"].set_figure(t, carrier, "" if r.get("carrier_detected") else "≥", detail)
+        self.tiles["imd"].set_unavailable("two-tone test only: choose Two-tone in the generator")
+
+    def _twotone_tiles(self, t: float, r: dict) -> None:
+        worst = r.get("worst_imd_db_pep")
+        order = r.get("worst_imd_order")
+        detail = ""
+        for product in r.get("imd") or []:
+            if product.get("order") == order:
+                dbc = [product.get(f"{s}_dbc") for s in ("lower", "upper") if product.get(f"{s}_dbc") is not None]
+                if dbc:
+                    detail = f"IMD{order} · {signed(max(dbc))} dBc"
+        if r.get("pep_dbfs") is not None:
+            detail += f" · PEP {signed(r['pep_dbfs'])} dBFS"
+        self.tiles["imd"].set_figure(t, worst, "≤" if r.get("worst_imd_is_bound") else "", detail.strip(" ·"))
+        self.tiles["sideband"].set_unavailable("single-tone figure: choose Tone in the generator")
+        self.tiles["carrier"].set_unavailable("single-tone figure: choose Tone in the generator")
+
+    def show_frame(self, frame: DisplayFrame) -> None:
+        self.last_frame = frame
+        self.spectrum.show_frame(frame)
+        self.waveform.show_frame(frame)
+        self.pattern.show_frame(frame)
+        if self._fit_pending and frame.markers:
+            self._fit_pending = False
+            self.spectrum.fit(frame)
+        self.plots.update()
+
+    def _update_status(self) -> None:
+        engine = self.runner.engine
+        if engine is None:
+            return
+        source = engine.source
+        self.source_label.setText(source.describe())
+        self.rate_label.setText(f"{source.rate_hz:g} Hz")
+        self.updates_label.setText(f"{self.runner.readouts_per_second():.1f} readouts/s")
+        x = source.counters.as_dict()
+        self.xrun_status.setText(f"xruns: {x['input_overflows']} over · {x['output_underflows']} under · "
+                                 f"{x['dropped_blocks']} dropped")
+
+    # -- exports --------------------------------------------------------------------------------------
+
+    def figures(self) -> dict[str, Any]:
+        """The newest readout's figures as JSON, with what was measured and how."""
+        readout = self.last_readout
+        out: dict[str, Any] = {"saved": datetime.now().isoformat(timespec="seconds")}
+        if readout is not None:
+            out.update(readout.as_json())
+        engine = self.runner.engine
+        if engine is not None:
+            out["source"] = engine.source.describe()
+            if self.config.source == "sim" and hasattr(engine.source, "knobs"):
+                out["bench_knobs"] = engine.source.knobs.as_dict()
+        return out
+
+    def export_png(self, path: str | Path) -> Path:
+        path = Path(path)
+        path.parent.mkdir(parents=True, exist_ok=True)
+        if not self.grab().save(str(path), "PNG"):
+            raise RtaError(f"could not write the picture {path}")
+        return path
+
+    def export_json(self, path: str | Path) -> Path:
+        path = Path(path)
+        path.parent.mkdir(parents=True, exist_ok=True)
+        path.write_text(json.dumps(self.figures(), indent=2, allow_nan=False, default=str) + "\n", encoding="utf-8")
+        return path
+
+    def export_csv(self, path: str | Path) -> Path:
+        path = Path(path)
+        path.parent.mkdir(parents=True, exist_ok=True)
+        with path.open("w", newline="", encoding="utf-8") as handle:
+            writer = csv.writer(handle)
+            writer.writerow(["quantity", "value", "unit"])
+            for key, value in flatten(self.figures()):
+                writer.writerow([key, "" if value is None else value, unit_of(key)])
+        return path
+
+    def snapshot(self) -> tuple[Path, Path]:
+        folder = config_dir() / "snapshots"
+        stamp = datetime.now().strftime("%Y%m%d-%H%M%S")
+        base = folder / f"rtanalyzer-{stamp}"
+        n = 1
+        while base.with_suffix(".png").exists():
+            n += 1
+            base = folder / f"rtanalyzer-{stamp}-{n}"
+        try:
+            png = self.export_png(base.with_suffix(".png"))
+            data = self.export_json(base.with_suffix(".json"))
+        except (OSError, RtaError) as exc:
+            self.statusBar().showMessage(f"Snapshot not saved: {exc}", 8000)
+            raise
+        self.statusBar().showMessage(f"Snapshot saved: {png} and {data.name}", 10000)
+        return png, data
+
+    def _export_png_dialog(self) -> None:
+        path, _ = QFileDialog.getSaveFileName(self, "Export the window", "rtanalyzer.png", "PNG pictures (*.png)")
+        if path:
+            self.export_png(path)
+            self.statusBar().showMessage(f"Saved {path}", 6000)
+
+    def _export_dialog(self, kind: str) -> None:
+        path, _ = QFileDialog.getSaveFileName(self, "Export the figures", f"rtanalyzer-figures.{kind}",
+                                              f"{kind.upper()} files (*.{kind})")
+        if path:
+            (self.export_csv if kind == "csv" else self.export_json)(path)
+            self.statusBar().showMessage(f"Saved {path}", 6000)
+
+    # -- closing --------------------------------------------------------------------------------------
+
+    def save_settings(self) -> None:
+        s = self.settings
+        s.save_session(self.config, self.generator)
+        s.save_view(self.log_box.isChecked(), self.hold_box.isChecked())
+        s.save_window(self.saveGeometry(), self.saveState())
+        s.sync()
+
+    def closeEvent(self, event) -> None:  # noqa: N802 - Qt
+        if not self._closing:
+            self._closing = True
+            self.status_timer.stop()
+            try:
+                self.save_settings()
+            finally:
+                self.runner.stop()
+                while QApplication.overrideCursor() is not None:
+                    QApplication.restoreOverrideCursor()
+                if self.cautions is not None:
+                    self.cautions.close()
+            self.closed.emit()
+        super().closeEvent(event)

@@ -1,0 +1,197 @@
+"""Calibration profiles: making them from synthetic captures, the file format, applying them, bad input."""
+
+from __future__ import annotations
+
+import json
+
+import numpy as np
+import pytest
+
+from conftest import write_wav
+from rtanalyzer.cli.main import main
+from rtanalyzer.errors import CaptureError, MeasurementError
+from rtanalyzer.measurements.calibration import (
+    CalibrationSet,
+    Profile,
+    make_channels_profile,
+    parse_profile,
+    write_profile,
+)
+from rtanalyzer.sources.capture import Signal
+
+RATE = 48000
+TONES = np.geomspace(250.0, 3500.0, 10).round()
+GAIN_DB, PHASE_DEG, DELAY_S = 0.2, 0.5, 2e-6  # the injected right-input mismatch
+
+
+@pytest.fixture(autouse=True)
+def _setup(cautions_already_shown, tmp_path, monkeypatch):
+    """Profiles go to a private folder; CLI calls run as a user who has seen the first-run notice."""
+    monkeypatch.setenv("RTANALYZER_CALIBRATION_DIR", str(tmp_path / "cal"))
+
+
+def mismatch(x, gain_db=GAIN_DB, phase_deg=PHASE_DEG, delay_s=DELAY_S):
+    """The right input's response g*exp(j(phi0 - 2 pi f tau)) applied exactly in the frequency domain."""
+    f = np.fft.rfftfreq(x.size, 1 / RATE)
+    h = 10 ** (gain_db / 20) * np.exp(1j * (np.radians(phase_deg) - 2 * np.pi * f * delay_s))
+    return np.fft.irfft(np.fft.rfft(x) * h, x.size)
+
+
+def multitone(seconds=2.0, seed=0):
+    t = np.arange(int(seconds * RATE)) / RATE
+    phases = np.random.default_rng(seed).uniform(0, 2 * np.pi, TONES.size)
+    return sum(0.08 * np.cos(2 * np.pi * f * t + p) for f, p in zip(TONES, phases))
+
+
+def cli(argv, capsys):
+    code = main([str(a) for a in argv])
+    out = capsys.readouterr()
+    return code, out.out, out.err
+
+
+def test_channel_mismatch_is_removed_to_target(tmp_path, capsys):
+    # Target (the issue): an injected 0.5 degree / 0.2 dB mismatch is removed to within 0.02 degrees / 0.01 dB.
+    x = multitone()
+    write_wav(tmp_path / "same.wav", np.column_stack([x, mismatch(x)]))  # one source into both inputs
+    code, out, err = cli(["calibrate", "channels", tmp_path / "same.wav", "--name", "card", "--json"], capsys)
+    assert (code, err) == (0, "")
+    prof = json.loads(out)
+    assert prof["gain_db"] == pytest.approx(GAIN_DB, abs=1e-3)
+    assert prof["phase_deg"] == pytest.approx(PHASE_DEG, abs=1e-3)
+    assert prof["delay_s"] == pytest.approx(DELAY_S, abs=1e-8)
+    # A network capture through the same card: Q lags I by 89 degrees, 0.1 dB low, then the card's mismatch.
+    y = multitone(seed=5)
+    q = np.fft.irfft(np.fft.rfft(y) * 10 ** (-0.1 / 20) * np.exp(-1j * np.radians(89.0)), y.size)
+    write_wav(tmp_path / "net.wav", np.column_stack([y, mismatch(q)]))
+    code, out, _ = cli(["analyze", "quadrature", tmp_path / "net.wav", "--json"], capsys)
+    raw = json.loads(out)
+    assert raw["calibration"] == []
+    assert raw["points"][3]["phase_difference_deg"] == pytest.approx(89.0 - PHASE_DEG + 360 * TONES[3] * DELAY_S,
+                                                                      abs=0.02)
+    code, out, _ = cli(["analyze", "quadrature", tmp_path / "net.wav", "--json", "--calibration", "card"], capsys)
+    fixed = json.loads(out)
+    assert fixed["calibration"] == ["card"]
+    assert [p["phase_difference_deg"] for p in fixed["points"]] == pytest.approx([89.0] * TONES.size, abs=0.02)
+    assert [p["amplitude_ratio_db"] for p in fixed["points"]] == pytest.approx([-0.1] * TONES.size, abs=0.01)
+
+
+def test_channels_profile_from_one_tone_puts_all_phase_in_phase_deg():
+    t = np.arange(RATE) / RATE
+    x = 0.5 * np.cos(2 * np.pi * 1000 * t)
+    prof = make_channels_profile(Signal(x + 1j * mismatch(x), float(RATE)), "one")
+    assert prof.values["delay_s"] == 0.0
+    assert prof.values["phase_deg"] == pytest.approx(PHASE_DEG - 360 * 1000 * DELAY_S, abs=1e-3)
+
+
+def test_antiphase_inputs_refused():
+    x = multitone(1.0)
+    with pytest.raises(MeasurementError, match="antiphase"):
+        make_channels_profile(Signal(x - 1j * x, float(RATE)), "bad")
+
+
+def test_profile_text_round_trip(tmp_path):
+    p = Profile("passband", "rx", 48000.0, "2026-01-01T00:00:00", "card # 2", "pb.wav", {},
+                ((300.0, -0.5), (1000.0, 0.1), (3000.0, 0.4)))
+    again = parse_profile(p.text(), "mem")
+    assert again == Profile("passband", "rx", 48000.0, "2026-01-01T00:00:00", "card", "pb.wav", {}, p.points)
+    path = write_profile(p, tmp_path)
+    with pytest.raises(CaptureError, match="--force"):
+        write_profile(p, tmp_path)
+    assert path.name == "rx.cal"
+
+
+@pytest.mark.parametrize("text,match", [
+    ("kind = channels\nname = a\nrate_hz = 48000\n", "lacks 'format"),
+    ("format = rtanalyzer-calibration 1\nkind = phase\nname = a\nrate_hz = 48000\n", "kind 'phase'"),
+    ("format = rtanalyzer-calibration 1\nkind = level\nname = a\nrate_hz = 48000\ngain_db = 1\n", "does not belong"),
+    ("format = rtanalyzer-calibration 1\nkind = channels\nname = a\nrate_hz = 48000\nnonsense\n", ":5: expected"),
+])
+def test_malformed_profiles(text, match):
+    with pytest.raises(CaptureError, match=match):
+        parse_profile(text, "p.cal")
+
+
+def test_mismatched_sample_rate_is_a_clear_error(tmp_path, capsys):
+    p = Profile("channels", "slow", 44100.0, values={"gain_db": 0.0, "phase_deg": 0.0, "delay_s": 0.0})
+    write_profile(p)
+    x = multitone(1.0)
+    wav = write_wav(tmp_path / "net.wav", np.column_stack([x, x]))
+    code, out, err = cli(["analyze", "quadrature", wav, "--calibration", "slow"], capsys)
+    assert code == 2 and out == ""
+    assert err.count("\n") == 1 and "44100 Hz" in err and "48000 Hz" in err
+    with pytest.raises(CaptureError, match="made at 44100"):
+        CalibrationSet.load(["slow"], 48000.0)
+
+
+def test_channels_profile_refused_for_a_mono_view(tmp_path, capsys):
+    write_profile(Profile("channels", "card", 48000.0, values={"gain_db": 0.0, "phase_deg": 0.0, "delay_s": 0.0}))
+    wav = write_wav(tmp_path / "mono.wav", multitone(1.0))
+    code, _, err = cli(["analyze", "sideband", wav, "--tone", 1000, "--calibration", "card"], capsys)
+    assert code == 2 and "stereo" in err
+
+
+def passband_db(f):
+    """A receiver whose gain tilts 3 dB per decade (linear in log f, so the profile interpolates it exactly)."""
+    return 3.0 * np.log10(np.asarray(f) / 1000.0)
+
+
+def test_passband_correction_makes_sideband_pairs_compare_fairly(tmp_path, capsys):
+    t = np.arange(2 * RATE) / RATE
+    flat = [(f, 0.05) for f in (300, 500, 800, 1200, 2000, 2500, 3500)]
+    ref = sum(a * 10 ** (passband_db(f) / 20) * np.cos(2 * np.pi * f * t + f) for f, a in flat)
+    write_wav(tmp_path / "flat.wav", ref)
+    code, out, err = cli(["calibrate", "passband", tmp_path / "flat.wav", "--name", "rx",
+                          "--tones", *[f for f, _ in flat]], capsys)
+    assert (code, err) == (0, ""), err
+    # Carrier at 1500 Hz, tone 1000 Hz: wanted 2500 Hz, unwanted 500 Hz; the exciter's true suppression is 40 dB.
+    wanted, unwanted = 0.3, 0.3 * 10 ** (-40 / 20)
+    x = (wanted * 10 ** (passband_db(2500) / 20) * np.cos(2 * np.pi * 2500 * t)
+         + unwanted * 10 ** (passband_db(500) / 20) * np.cos(2 * np.pi * 500 * t + 1.0)
+         + 1e-4 * np.cos(2 * np.pi * 1500 * t))
+    wav = write_wav(tmp_path / "sb.wav", x)
+    argv = ["analyze", "sideband", wav, "--tone", 1000, "--carrier", 1500, "--wanted", "above", "--json"]
+    code, out, _ = cli(argv, capsys)
+    raw = json.loads(out)
+    tilt = float(passband_db(2500) - passband_db(500))
+    assert raw["points"][0]["sideband_suppression_db"] == pytest.approx(40.0 + tilt, abs=0.1)
+    assert raw["calibration"] == []  # named in every result, empty when none applied
+    code, out, _ = cli(argv + ["--calibration", "rx"], capsys)
+    fixed = json.loads(out)
+    assert fixed["calibration"] == ["rx"]
+    assert fixed["points"][0]["sideband_suppression_db"] == pytest.approx(40.0, abs=0.1)
+    assert fixed["worst_sideband_suppression_db"] == pytest.approx(40.0, abs=0.1)
+
+
+def test_level_calibration_adds_volts(tmp_path, capsys):
+    # A 0.5 V RMS sine recorded at -10 dBFS: a 0 dBFS sine is 0.5 / 10**(-10/20) = 1.581 V RMS (AES17 dBFS).
+    t = np.arange(RATE) / RATE
+    ref = 10 ** (-10 / 20) * np.cos(2 * np.pi * 997 * t)
+    write_wav(tmp_path / "ref.wav", ref)
+    code, out, err = cli(["calibrate", "level", tmp_path / "ref.wav", "--volts-rms", 0.5, "--name", "lv", "--json"],
+                         capsys)
+    assert (code, err) == (0, "")
+    assert json.loads(out)["channel_1_full_scale_vrms"] == pytest.approx(0.5 / 10 ** (-0.5), rel=1e-3)
+    x = 0.2 * np.cos(2 * np.pi * 2500 * t) + 0.002 * np.cos(2 * np.pi * 500 * t)
+    wav = write_wav(tmp_path / "sb.wav", x)
+    code, out, _ = cli(["analyze", "sideband", wav, "--tone", 1000, "--carrier", 1500, "--wanted", "above",
+                        "--json", "--calibration", "lv"], capsys)
+    r = json.loads(out)
+    p = r["points"][0]
+    # A sine of peak 0.2 of full scale is 0.2 times the RMS volts of a 0 dBFS sine (AES17 dBFS); dBV re 1 V RMS.
+    assert p["wanted_dbv"] == pytest.approx(20 * np.log10(0.2 * 0.5 / 10 ** (-0.5)), abs=0.02)
+    assert r["calibration"] == ["lv"]
+    code, _, err = cli(["calibrate", "level", tmp_path / "ref.wav", "--name", "lv2"], capsys)
+    assert code == 2 and "--volts-rms" in err
+
+
+def test_channels_profile_applies_to_iq_sideband(tmp_path, capsys):
+    write_profile(Profile("channels", "card", 48000.0, values={"gain_db": 0.0, "phase_deg": 0.0, "delay_s": 0.0}))
+    t = np.arange(RATE) / RATE
+    z = 0.3 * np.exp(2j * np.pi * 5000 * t) + 0.003 * np.exp(2j * np.pi * 3000 * t)
+    wav = write_wav(tmp_path / "iq.wav", np.column_stack([z.real, z.imag]))
+    code, out, err = cli(["analyze", "sideband", wav, "--iq", "--tone", 1000, "--carrier", 4000, "--json",
+                          "--calibration", "card"], capsys)
+    assert (code, err) == (0, "")
+    r = json.loads(out)
+    assert r["calibration"] == ["card"]
+    assert r["points"][0]["sideband_suppression_db"] == pytest.approx(40.0, abs=0.1)
