@@ -7,9 +7,8 @@ own `analyze` sub-command with no change here.
 from __future__ import annotations
 
 import argparse
-import json
-import sys
 
+from rtanalyzer.cli.output import print_json
 from rtanalyzer.cli.history_options import add_save_options, check_save_options
 from rtanalyzer.measurements.base import Measurement
 
@@ -83,8 +82,7 @@ def run(args: argparse.Namespace) -> int:
     result = plugin.measure(signal, settings, **extra)
     figures = calibration.finish(result.to_json(), signal)
     if args.json:
-        json.dump(figures, sys.stdout, allow_nan=False)
-        sys.stdout.write("\n")
+        print_json(figures)
     else:
         header = f"{plugin.name} · {args.file} · {signal.label} · {signal.rate_hz:g} Hz · {signal.seconds:.1f} s"
         print(render(plugin.name, figures, header))

@@ -7,9 +7,8 @@ The profile is written as NAME.cal in ``$RTANALYZER_CALIBRATION_DIR`` or ./calib
 from __future__ import annotations
 
 import argparse
-import json
-import sys
 
+from rtanalyzer.cli.output import print_json
 from rtanalyzer.errors import RtaError
 
 
@@ -59,8 +58,7 @@ def run(args: argparse.Namespace) -> int:
                                          (args.channel,) if args.channel else (), args.device, args.file)
     path = cal.write_profile(profile, args.dir, args.force)
     if args.json:
-        json.dump({**profile.to_json(), "path": str(path)}, sys.stdout, allow_nan=False)
-        sys.stdout.write("\n")
+        print_json({**profile.to_json(), "path": str(path)})
         return 0
     print(f"wrote {path} ({profile.kind}, {profile.rate_hz:g} Hz)")
     v = profile.values

@@ -10,9 +10,9 @@ from __future__ import annotations
 
 import argparse
 import json
-import sys
 from pathlib import Path
 
+from rtanalyzer.cli.output import emit
 from rtanalyzer.errors import MeasurementError, RtaError
 
 
@@ -83,11 +83,7 @@ def run(args: argparse.Namespace) -> int:
         out["source"] = path
         out["calibration"] = figures.get("calibration", [])
         out["warnings"] = figures.get("warnings", [])
-    if args.json:
-        json.dump(out, sys.stdout, allow_nan=False)
-        sys.stdout.write("\n")
-    else:
-        print("\n".join(_text(out)))
+    emit(out, args.json, _text)
     return 0
 
 

@@ -7,7 +7,6 @@ command lists, shows, annotates, deletes, compares, exports, imports and reports
 from __future__ import annotations
 
 import argparse
-import json
 import re
 import sys
 import time
@@ -15,6 +14,7 @@ from datetime import datetime
 from pathlib import Path
 from typing import Any
 
+from rtanalyzer.cli.output import print_json
 from rtanalyzer.cli.history_options import add_store_options, open_store
 from rtanalyzer.errors import RtaError
 
@@ -244,8 +244,7 @@ def _list(args: argparse.Namespace) -> int:
              **s.figures, "bounds": sorted(s.bounds), "tags": list(s.tags), "note": s.note}
             for s in snaps
         ]
-        json.dump(rows, sys.stdout, allow_nan=False)
-        sys.stdout.write("\n")
+        print_json(rows)
         return 0
     if not snaps:
         print(f"no snapshots match ({_selection_text(args)}) in {path}")
@@ -273,8 +272,7 @@ def _show(args: argparse.Namespace) -> int:
         data = snapshot_to_json(s)
         if s.spectrum is not None:
             data["spectrum"] = s.spectrum.header()  # the levels: history export
-        json.dump(data, sys.stdout, allow_nan=False)
-        sys.stdout.write("\n")
+        print_json(data)
         return 0
     lines = [
         f"snapshot #{s.id} · {s.measurement} · rig {s.rig} · {local_time(s.created_epoch, True)} "
@@ -372,8 +370,7 @@ def _compare(args: argparse.Namespace) -> int:
         a, b = store.select(args.a, with_spectra=False), store.select(args.b, with_spectra=False)
     result = compare(a, b, _selector(args.a), _selector(args.b))
     if args.json:
-        json.dump(result.to_json(), sys.stdout, allow_nan=False)
-        sys.stdout.write("\n")
+        print_json(result.to_json())
     else:
         print(render_comparison(result))
     return 0

@@ -3,8 +3,8 @@
 from __future__ import annotations
 
 import argparse
-import json
-import sys
+
+from rtanalyzer.cli.output import emit
 
 
 def add_parser(subparsers) -> argparse.ArgumentParser:
@@ -58,11 +58,7 @@ def run(args: argparse.Namespace) -> int:
         out["measured"] = {"capture": args.measured, **compare_measured(network, figures["points"])}
         out["calibration"] = figures["calibration"]
         out["warnings"] = figures["warnings"]
-    if args.json:
-        json.dump(out, sys.stdout, allow_nan=False)
-        sys.stdout.write("\n")
-    else:
-        print("\n".join(_text(out)))
+    emit(out, args.json, _text)
     return 0
 
 
