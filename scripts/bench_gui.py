@@ -86,7 +86,7 @@ def redraw_rate(points: int, seconds: float, all_plots: bool) -> tuple[float, fl
     for m in base.markers:
         floor[:, np.argmin(np.abs(freqs - m.frequency_hz))] = m.level_dbfs
     frames = [base.__class__(**{**base.__dict__, "frequencies_hz": freqs, "level_dbfs": floor[i]}) for i in range(8)]
-    canvas = window.plots.canvas
+    canvas = window.plots.canvas  # each spectrum draw asks for the next frame
     state = {"n": 0, "t0": 0.0, "cpu0": 0.0, "done": False}
     loop = QEventLoop()
 
@@ -102,7 +102,11 @@ def redraw_rate(points: int, seconds: float, all_plots: bool) -> tuple[float, fl
             loop.quit()
             return
         if all_plots:
-            window.show_frame(frame)
+            window.spectrum.show_frame(frame)
+            window.waveform.show_frame(frame)
+            window.pattern.show_frame(frame)
+            window.plots.update()
+            window.lower.update()
         else:
             window.spectrum.show_frame(frame)
             window.plots.update()
@@ -118,8 +122,54 @@ def redraw_rate(points: int, seconds: float, all_plots: bool) -> tuple[float, fl
     return count / wall, 1000.0 * cpu / max(count, 1), size
 
 
-def live_load(seconds: float, signal) -> dict:
+def bare_canvas_rate(points: int, seconds: float, size: tuple[int, int]) -> tuple[float, float]:
+    """The same spectrum plot in a canvas of its own (no window around it to compose)."""
+    from PyQt6.QtCore import QEventLoop, QTimer
+
+    from rtanalyzer.gui.app import application
+    from rtanalyzer.gui.frames import DisplayFrame
+    from rtanalyzer.gui.plots import PlotCanvas, SpectrumPlot
+
+    app = application()
+    host = PlotCanvas()
+    plot = host.add(SpectrumPlot(host))
+    host.share_fonts()
+    host.canvas.size = size
+    host.canvas.show()
+    _wait(app, 0.5)
+    rng = np.random.default_rng(2)
+    freqs = np.linspace(0.0, 24000.0, points).astype(np.float32)
+    frames = [DisplayFrame(readout=None, frequencies_hz=freqs, rate_hz=48000.0, noise_floor_dbfs=-122.0,
+                           analysis_bandwidth_hz=23.5,
+                           level_dbfs=(-122.0 + 5.0 * rng.standard_normal(points)).astype(np.float32))
+              for _ in range(8)]
+    plot.set_range(x=(0, 24000), y=(-150, 10))
+    state = {"n": 0, "t0": 0.0, "cpu0": 0.0}
+    loop = QEventLoop()
+
+    def next_frame() -> None:
+        state["n"] += 1
+        if state["n"] == 10:
+            state["t0"], state["cpu0"] = time.perf_counter(), time.thread_time()
+        if state["n"] > 10 and time.perf_counter() - state["t0"] > seconds:
+            loop.quit()
+            return
+        plot.show_frame(frames[state["n"] % len(frames)])
+        host.update()
+
+    host.canvas.events.draw.connect(lambda e: QTimer.singleShot(0, next_frame))
+    QTimer.singleShot(0, next_frame)
+    loop.exec()
+    count = state["n"] - 11
+    wall = time.perf_counter() - state["t0"]
+    rate = count / wall, 1000.0 * (time.thread_time() - state["cpu0"]) / max(count, 1)
+    host.canvas.close()
+    return rate
+
+
+def live_load(seconds: float, signal, display_hz: float) -> dict:
     app, window = _open_window(signal)
+    window.set_display_rate(display_hz)
     _wait(app, 1.0)
     count0 = window._readout_count
     wall0, gui0, proc0 = time.perf_counter(), time.thread_time(), time.process_time()
@@ -128,7 +178,7 @@ def live_load(seconds: float, signal) -> dict:
     out = {
         "gui_core_share": (time.thread_time() - gui0) / wall,
         "process_core_share": (time.process_time() - proc0) / wall,
-        "gui_ticks_with_a_readout_per_s": (window._readout_count - count0) / wall,
+        "redraws_per_s": (window._readout_count - count0) / wall,
         "readouts_per_s": window.runner.readouts_per_second(),
         "points": int(window.last_frame.level_dbfs.size) if window.last_frame.level_dbfs is not None else 0,
         "renderer": _gl_renderer(),
@@ -137,28 +187,56 @@ def live_load(seconds: float, signal) -> dict:
     return out
 
 
+def _part(name: str, args: argparse.Namespace) -> None:
+    """One measurement, in a process of its own (nothing left over from another)."""
+    from rtanalyzer.generator.signals import Tone, TwoTone
+
+    if name == "redraw":
+        fps, ms, size = redraw_rate(args.points, 4.0, all_plots=False)
+        print(f"spectrum redraw in the window, {args.points} points, canvas {size[0]}x{size[1]} px: "
+              f"{fps:.1f} frames/s (target >= 30), GUI thread {ms:.1f} ms/frame")
+    elif name == "bare":
+        fps, ms = bare_canvas_rate(args.points, 4.0, (1203, 452))
+        print(f"the same spectrum canvas alone (1203x452 px, no window to compose): {fps:.1f} frames/s, "
+              f"GUI thread {ms:.1f} ms/frame")
+    elif name == "all":
+        fps, ms, _ = redraw_rate(args.points, 4.0, all_plots=True)
+        print(f"spectrum and the three small plots redrawn each frame, {args.points}-point spectrum: "
+              f"{fps:.1f} frames/s, GUI thread {ms:.1f} ms/frame")
+    else:
+        kind, hz = name.split("@")
+        signal = Tone(1000.0, -6.0) if kind == "tone" else TwoTone(700.0, 1900.0, -6.0)
+        r = live_load(args.seconds, signal, float(hz))
+        print(f"live on the bench, {kind}, {r['points']} spectrum points, {r['readouts_per_s']:.1f} readouts/s, "
+              f"{r['redraws_per_s']:.1f} redraws/s: GUI thread {100 * r['gui_core_share']:.1f} % of one core; "
+              f"whole process {100 * r['process_core_share']:.0f} % of one core")
+        if kind == "twotone" and hz.startswith("20"):
+            print(f"OpenGL: {r['renderer']}")
+
+
 def main() -> None:
+    import subprocess
+
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--seconds", type=float, default=10.0, help="length of each live measurement")
     parser.add_argument("--points", type=int, default=8192, help="spectrum points for the redraw rate")
+    parser.add_argument("--part", help=argparse.SUPPRESS)
     args = parser.parse_args()
     _ensure_display()
     os.environ.setdefault("RTANALYZER_CONFIG_DIR", tempfile.mkdtemp(prefix="rtanalyzer-bench-gui-"))
     os.environ.setdefault("QT_QPA_PLATFORM", "xcb")
-    from rtanalyzer.generator.signals import Tone, TwoTone
+    if args.part:
+        _part(args.part, args)
+        return
+    from rtanalyzer.gui.runner import DISPLAY_RATES
 
-    print(f"rtanalyzer desktop window benchmark · {os.cpu_count()} cores · DISPLAY={os.environ.get('DISPLAY')}")
-    fps, ms, size = redraw_rate(args.points, 4.0, all_plots=False)
-    print(f"spectrum redraw, {args.points} points, plot canvas {size[0]}x{size[1]} px: "
-          f"{fps:.1f} frames/s (target >= 30), GUI thread {ms:.1f} ms/frame")
-    fps, ms, size = redraw_rate(args.points, 4.0, all_plots=True)
-    print(f"all four plots redrawn, {args.points}-point spectrum: {fps:.1f} frames/s, GUI thread {ms:.1f} ms/frame")
-    for name, signal in (("tone", Tone(1000.0, -6.0)), ("two-tone", TwoTone(700.0, 1900.0, -6.0))):
-        r = live_load(args.seconds, signal)
-        print(f"live on the bench, {name}, {r['points']} spectrum points, {r['readouts_per_s']:.1f} readouts/s: "
-              f"GUI thread {100 * r['gui_core_share']:.1f} % of one core; whole process "
-              f"{100 * r['process_core_share']:.0f} % of one core")
-    print(f"OpenGL: {r['renderer']}")
+    load = os.getloadavg()[0] if hasattr(os, "getloadavg") else float("nan")
+    print(f"rtanalyzer desktop window benchmark · {os.cpu_count()} cores · load average {load:.2f} at the start")
+    parts = ["redraw", "bare", "all"] + [f"{k}@{hz:g}" for k in ("tone", "twotone") for hz in DISPLAY_RATES]
+    for part in parts:
+        subprocess.run([sys.executable, __file__, "--part", part, "--seconds", str(args.seconds),
+                        "--points", str(args.points)], check=False,
+                       stderr=subprocess.DEVNULL)
 
 
 if __name__ == "__main__":

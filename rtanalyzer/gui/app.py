@@ -107,6 +107,8 @@ def prepare_session(config, notice: str | None, explicit: frozenset[str], settin
     from rtanalyzer.live.session import device_present
 
     generator = GeneratorChoice.from_signal(config.signal) if config.signal is not None else GeneratorChoice()
+    if "measurement" not in explicit:
+        config = config.with_changes(measurement=None)  # the window's "as the signal suggests"
     restored, generator = settings.restore_session(config, generator, explicit)
     banner = None
     if notice:
@@ -158,7 +160,7 @@ def run_window(config, notice: str | None = None, explicit: frozenset[str] = fro
     from rtanalyzer.gui.settings import WindowSettings
     from rtanalyzer.gui.window import MainWindow
 
-    app = application()
+    app = application()  # keep the reference: PyQt destroys an application nobody holds
     settings = WindowSettings()
     first_run = show_first_run_notice(io.StringIO())  # marks the cautions as shown; the window shows them
     config, generator, banner = prepare_session(config, notice, explicit, settings)
@@ -189,6 +191,7 @@ def run_window(config, notice: str | None = None, explicit: frozenset[str] = fro
     finally:
         restore()
         window.deleteLater()
+        app.sendPostedEvents()
     if outcome["error"]:
         raise RtaError(outcome["error"])
     return outcome["status"]

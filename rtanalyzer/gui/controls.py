@@ -343,9 +343,7 @@ class ControlsPanel(QWidget):
             if label is not None:
                 label.setVisible(kind == "file")
         self.bench_box.setVisible(kind == "sim")
-        self.generator_box.setEnabled(kind != "file")
-        self.generator_note.setText("A recording plays no test signal: say which tones it holds under "
-                                    "Frequency plan." if kind == "file" else "")
+        self.generator_box.setVisible(kind != "file")  # a recording plays no test signal
         self.plan_tones.setVisible(kind == "file")
         label = self._plan_form.labelForField(self.plan_tones)
         if label is not None:

@@ -57,7 +57,15 @@ def cautions_dialog(parent, first_time: bool) -> TextDialog:
     heading = ("Before you connect anything: shown once, and again from Help ▸ Safety cautions"
                if first_time else "Safety cautions")
     lines = CAUTIONS.strip().splitlines()
-    body = "\n".join(lines[1:]) if lines and lines[0].lower().startswith("safety") else CAUTIONS.strip()
+    if lines and lines[0].lower().startswith("safety"):
+        lines = lines[1:]  # the heading says it
+    items: list[str] = []
+    for line in lines:  # join each point's continuation lines: the dialog wraps to its width
+        if line.startswith(" ") and items:
+            items[-1] += " " + line.strip()
+        else:
+            items.append(line.strip())
+    body = "\n\n".join(items)
     dialog = TextDialog("rtanalyzer — safety cautions", heading, body, parent, 12.5)
     dialog.setObjectName("cautions_dialog")
     dialog.setAttribute(Qt.WidgetAttribute.WA_DeleteOnClose, False)

@@ -1,14 +1,15 @@
 """The vispy plots: spectrum with markers, waveform and envelope, envelope versus drive, trend.
 
-Each plot is a vispy ViewBox with a pan/zoom camera (drag to pan, wheel to zoom), our own
-ticks and grid lines, and a title. The drawing code only moves data the analysis thread has
-already prepared (:mod:`rtanalyzer.gui.frames`) into the visuals.
+Each plot is a vispy ViewBox with a pan/zoom camera (drag to pan, wheel to zoom). Under
+software OpenGL every visual drawn costs time, so the axes are not vispy's axis widgets (four
+visuals each): a :class:`PlotCanvas` draws the ticks, tick labels and titles of all its plots
+with one line visual and three text visuals, laid out in canvas pixels. The drawing code only
+moves data the analysis thread has already prepared (:mod:`rtanalyzer.gui.frames`).
 """
 
 from __future__ import annotations
 
 import math
-import time
 from collections import deque
 
 import numpy as np
@@ -19,16 +20,24 @@ from vispy.visuals.text.text import FontManager, TextVisual
 
 from rtanalyzer.gui import style
 from rtanalyzer.gui.frames import DisplayFrame
-from rtanalyzer.gui.ticks import FunctionTicker, TickFunction, frequency_ticks, value_ticks
+from rtanalyzer.gui.ticks import TickFunction, frequency_ticks, value_ticks
 
 LOG_MIN_HZ = 10.0  # left end of a log frequency axis
-LABEL_PT = 10
-AXIS_PT = 9
+LABEL_PT = 10  # marker labels
+AXIS_PT = 9  # tick labels
+TITLE_PT = 10  # titles, axis titles, legends
+PX_PER_PT = 96.0 / 72.0
+MINUS = "\u2212"
 
 
 def _rgba(colour: str, alpha: float = 1.0) -> tuple[float, float, float, float]:
     c = Color(colour).rgba
     return (float(c[0]), float(c[1]), float(c[2]), alpha)
+
+
+def text_width(text: str, points: float) -> float:
+    """Rough width in pixels of a line of text (the chrome is laid out without measuring)."""
+    return len(text) * points * PX_PER_PT * 0.56
 
 
 def dashed_hline(x0: float, x1: float, y: float, dash: float) -> np.ndarray:
@@ -49,51 +58,46 @@ def dashed_segment(p0, p1, pieces: int = 40) -> np.ndarray:
     return pts.astype(np.float32)
 
 
-class Plot:
-    """A titled plot cell: ViewBox, left and bottom axes, grid lines, all following the camera."""
+def _line(parent, colour: str, width: float = 1.0, connect: str = "strip") -> scene.Line:
+    return scene.Line(np.zeros((2, 2), np.float32), color=colour, width=width, connect=connect, method="gl",
+                      antialias=False, parent=parent)
 
-    def __init__(self, grid, row: int, col: int, title: str, x_title: str, y_title: str,
-                 x_ticks: TickFunction, y_ticks: TickFunction, y_axis_width: int = 58, col_span: int = 1,
-                 stretch: float = 1.0, legend: bool = False) -> None:
-        cell = grid.add_grid(row=row, col=col, col_span=col_span, spacing=0)
-        cell.stretch = (1.0, stretch)
-        self.cell = cell
-        header = cell.add_grid(row=0, col=0, col_span=2, spacing=0)
-        header.height_max = 26
-        self.title = scene.Label(title, color=style.INK, font_size=11)
-        header.add_widget(self.title, row=0, col=0)
-        self.legend = scene.Label("", color=style.INK_SOFT, font_size=9) if legend else None
-        if self.legend is not None:
-            header.add_widget(self.legend, row=0, col=1)
-        self.y_axis = scene.AxisWidget(
-            orientation="left", axis_label=y_title, axis_font_size=AXIS_PT, tick_font_size=AXIS_PT,
-            axis_label_margin=44, tick_label_margin=6, text_color=style.INK, axis_color=style.INK_SOFT,
-            tick_color=style.INK_SOFT, axis_width=1, tick_width=1, major_tick_length=6, minor_tick_length=3,
-        )
-        self.y_axis.width_max = y_axis_width
-        cell.add_widget(self.y_axis, row=1, col=0)
-        self.view = cell.add_view(row=1, col=1, bgcolor=style.PLOT, border_color=style.RULE)
-        self.x_axis = scene.AxisWidget(
-            orientation="bottom", axis_label=x_title, axis_font_size=AXIS_PT, tick_font_size=AXIS_PT,
-            axis_label_margin=30, tick_label_margin=14, text_color=style.INK, axis_color=style.INK_SOFT,
-            tick_color=style.INK_SOFT, axis_width=1, tick_width=1, major_tick_length=6, minor_tick_length=3,
-        )
-        self.x_axis.height_max = 46
-        cell.add_widget(self.x_axis, row=2, col=1)
-        self.view.camera = scene.PanZoomCamera(aspect=None)
+
+class Plot:
+    """A ViewBox and what its axes say; the hosting canvas draws the axes."""
+
+    MARGIN_TOP = 26
+    MARGIN_RIGHT = 12
+    MARGIN_BOTTOM = 46
+
+    def __init__(self, host: PlotCanvas, title: str, x_title: str, y_title: str, x_ticks: TickFunction,
+                 y_ticks: TickFunction, y_axis_width: int = 60) -> None:
+        self.host = host
+        self.title = title
+        self.x_title = x_title
+        self.y_title = y_title
+        self.legend = ""
+        self.legend_colour = style.INK_SOFT
         self.x_ticks = x_ticks
         self.y_ticks = y_ticks
-        self.x_axis.axis.ticker = FunctionTicker(self.x_axis.axis, lambda a, b: self.x_ticks(a, b))
-        self.y_axis.axis.ticker = FunctionTicker(self.y_axis.axis, lambda a, b: self.y_ticks(a, b))
-        self.grid_lines = scene.Line(np.zeros((2, 2), np.float32), color=style.GRID, width=1,
-                                     connect="segments", method="gl", antialias=False, parent=self.view.scene)
+        self.margin_left = y_axis_width
+        self.view = scene.widgets.ViewBox(parent=host.canvas.scene, bgcolor=style.PLOT, border_color=style.RULE)
+        self.view.camera = scene.PanZoomCamera(aspect=None)
+        self.grid_lines = _line(self.view.scene, style.GRID, connect="segments")
         self.grid_lines.order = -10
-        self.x_axis.link_view(self.view)
-        self.y_axis.link_view(self.view)
         self.view.scene.transform.changed.connect(self._camera_moved)
         self.listeners: list = []
+        self.box = (0.0, 0.0, 10.0, 10.0)  # the view's rectangle in canvas pixels
 
-    # -- camera ---------------------------------------------------------------------------------
+    # -- placing and the camera -----------------------------------------------------------------------
+
+    def place(self, x: float, y: float, w: float, h: float) -> None:
+        left, top = x + self.margin_left, y + self.MARGIN_TOP
+        width = max(w - self.margin_left - self.MARGIN_RIGHT, 10.0)
+        height = max(h - self.MARGIN_TOP - self.MARGIN_BOTTOM, 10.0)
+        self.box = (left, top, width, height)
+        self.view.pos = (left, top)
+        self.view.size = (width, height)
 
     @property
     def rect(self):
@@ -113,52 +117,180 @@ class Plot:
         r = self.rect
         return r.width / max(w, 1.0), r.height / max(h, 1.0)
 
+    def set_legend(self, text: str, colour: str | None = None) -> None:
+        colour = colour or self.legend_colour
+        if text != self.legend or colour != self.legend_colour:
+            self.legend, self.legend_colour = text, colour
+            self.host.chrome_changed()
+
     def _camera_moved(self, event=None) -> None:
         self.refresh_grid()
         for listener in self.listeners:
             listener()
-
-    def refresh_axes(self) -> None:
-        """Re-derive the axes' ranges (after a layout change vispy may not have)."""
-        self.x_axis._view_changed()
-        self.y_axis._view_changed()
-        self.refresh_grid()
+        self.host.chrome_changed()
 
     def refresh_grid(self) -> None:
         r = self.rect
         xs, _, _ = self.x_ticks(r.left, r.right)
         ys, _, _ = self.y_ticks(r.bottom, r.top)
-        segs = []
-        for x in xs:
-            segs += [(x, r.bottom), (x, r.top)]
-        for y in ys:
-            segs += [(r.left, y), (r.right, y)]
+        segs = [p for x in xs for p in ((x, r.bottom), (x, r.top))] + [p for y in ys for p in ((r.left, y), (r.right, y))]
         if segs:
             self.grid_lines.set_data(np.asarray(segs, np.float32))
+
+    # -- the axes, in canvas pixels ------------------------------------------------------------------
+
+    def chrome(self):
+        """(tick segments, x tick labels, y tick labels, titles) for the canvas to draw."""
+        x0, y0, w, h = self.box
+        r = self.rect
+        segs: list[tuple[float, float]] = []
+        x_labels: list[tuple[str, tuple[float, float]]] = []
+        y_labels: list[tuple[str, tuple[float, float]]] = []
+        titles: list[tuple[str, tuple[float, float], float, str]] = []
+        if r.width > 0 and r.height > 0:
+            major, minor, labels = self.x_ticks(r.left, r.right)
+            for v, text in zip(major, labels):
+                px = x0 + (v - r.left) / r.width * w
+                segs += [(px, y0 + h), (px, y0 + h + 5)]
+                x_labels.append((text, (px, y0 + h + 7)))
+            for v in minor:
+                px = x0 + (v - r.left) / r.width * w
+                segs += [(px, y0 + h), (px, y0 + h + 3)]
+            major, minor, labels = self.y_ticks(r.bottom, r.top)
+            for v, text in zip(major, labels):
+                py = y0 + (r.top - v) / r.height * h
+                segs += [(x0, py), (x0 - 5, py)]
+                y_labels.append((text, (x0 - 7, py)))
+            for v in minor:
+                py = y0 + (r.top - v) / r.height * h
+                segs += [(x0, py), (x0 - 3, py)]
+        titles.append((self.title, (x0 + text_width(self.title, TITLE_PT) / 2, y0 - 13), 0.0, style.INK))
+        if self.legend:
+            titles.append((self.legend, (x0 + w - text_width(self.legend, TITLE_PT) / 2, y0 - 13), 0.0,
+                           self.legend_colour))
+        titles.append((self.x_title, (x0 + w / 2, y0 + h + 33), 0.0, style.INK))
+        titles.append((self.y_title, (x0 - self.margin_left + 11, y0 + h / 2), -90.0, style.INK))
+        return segs, x_labels, y_labels, titles
+
+
+class PlotCanvas:
+    """One vispy canvas (one GL context) with plots side by side and one layer for their axes."""
+
+    def __init__(self) -> None:
+        self.canvas = scene.SceneCanvas(keys=None, bgcolor=style.PAPER, show=False)
+        root = self.canvas.scene
+        self.ticks = _line(root, style.INK_SOFT, connect="segments")
+        self.x_labels = scene.Text("", color=style.INK, font_size=AXIS_PT, anchor_x="center", anchor_y="bottom",
+                                   parent=root)  # vispy's y anchors are flipped in pixel space: hangs below
+        self.y_labels = scene.Text("", color=style.INK, font_size=AXIS_PT, anchor_x="right", anchor_y="center",
+                                   parent=root)
+        self.titles = scene.Text("", color=style.INK, font_size=TITLE_PT, anchor_x="center", anchor_y="center",
+                                 parent=root)
+        self.plots: list[Plot] = []
+        self.weights: list[float] = []
+        self._chrome_due = False
+        self._last_chrome = None
+        self.canvas.events.resize.connect(lambda event: self.layout())
+
+    @property
+    def native(self):
+        return self.canvas.native
+
+    def add(self, plot: Plot, weight: float = 1.0) -> Plot:
+        self.plots.append(plot)
+        self.weights.append(weight)
+        self.layout()
+        return plot
+
+    def layout(self) -> None:
+        w, h = self.canvas.size
+        total = sum(self.weights) or 1.0
+        x = 0.0
+        for plot, weight in zip(self.plots, self.weights):
+            width = w * weight / total
+            plot.place(x, 0.0, width, h)
+            x += width
+        self.chrome_changed()
+
+    def chrome_changed(self) -> None:
+        """Redraw the axes soon (once, however many cameras moved)."""
+        if not self._chrome_due:
+            self._chrome_due = True
+            QTimer.singleShot(0, self.refresh_chrome)
+
+    def refresh_chrome(self) -> None:
+        self._chrome_due = False
+        segs, xl, yl, titles = [], [], [], []
+        for plot in self.plots:
+            s, x, y, t = plot.chrome()
+            segs += s
+            xl += x
+            yl += y
+            titles += [item for item in t if item[0]]
+        key = (tuple(segs), tuple(xl), tuple(yl), tuple(titles))
+        if key == self._last_chrome:
+            return
+        self._last_chrome = key
+        if segs:
+            self.ticks.set_data(np.asarray(segs, np.float32))
+        for visual, items in ((self.x_labels, xl), (self.y_labels, yl)):
+            visual.text = [text for text, _ in items] or ""
+            if items:
+                visual.pos = np.asarray([pos for _, pos in items], np.float32)
+        self.titles.text = [t for t, _, _, _ in titles] or ""
+        if titles:
+            self.titles.pos = np.asarray([p for _, p, _, _ in titles], np.float32)
+            self.titles.rotation = np.asarray([rot for _, _, rot, _ in titles], np.float32)
+            self.titles.color = [_rgba(c) for _, _, _, c in titles]
+        self.canvas.update()
+
+    def update(self) -> None:
+        self.canvas.update()
+
+    def share_fonts(self) -> int:
+        """Give every text in the canvas one font manager, so each glyph is rendered once.
+
+        vispy gives each text visual its own and renders each glyph's distance field on the
+        CPU for each of them: seconds at start-up under software OpenGL.
+        """
+        fonts = FontManager(method="cpu")
+        count = 0
+        for visual in _text_visuals(self.canvas.scene, set()):
+            visual._font_manager = fonts
+            visual._update_font()
+            count += 1
+        return count
+
+
+def _text_visuals(node, seen: set):
+    if id(node) in seen:
+        return
+    seen.add(id(node))
+    if isinstance(node, TextVisual):
+        yield node
+    for sub in getattr(node, "_subvisuals", ()):
+        yield from _text_visuals(sub, seen)
+    for child in getattr(node, "children", ()):
+        yield from _text_visuals(child, seen)
 
 
 class SpectrumPlot(Plot):
     """The averaged spectrum in dBFS, peak hold, noise floor and labelled markers."""
 
-    def __init__(self, grid, row: int, col: int, col_span: int = 1) -> None:
+    def __init__(self, host: PlotCanvas) -> None:
         self.log = False
-        super().__init__(grid, row, col, "Spectrum of the captured audio", "frequency, Hz", "level, dBFS",
-                         frequency_ticks(False), value_ticks(8), y_axis_width=64, col_span=col_span, stretch=1.5,
-                         legend=True)
-        scene_ = self.view.scene
-        self.peak = scene.Line(np.zeros((2, 2), np.float32), color=style.PEAK, width=1, method="gl",
-                               antialias=False, parent=scene_)
-        self.trace = scene.Line(np.zeros((2, 2), np.float32), color=style.TRACE, width=1, method="gl",
-                                antialias=False, parent=scene_)
-        self.noise = scene.Line(np.zeros((2, 2), np.float32), color=style.NOISE, width=1.5, connect="segments",
-                                method="gl", antialias=False, parent=scene_)
-        self.dots = scene.Markers(parent=scene_)
+        super().__init__(host, "Spectrum of the captured audio", "frequency, Hz", "level, dBFS",
+                         frequency_ticks(False), value_ticks(8), y_axis_width=62)
+        s = self.view.scene
+        self.peak = _line(s, style.PEAK)
+        self.trace = _line(s, style.TRACE)
+        self.noise = _line(s, style.NOISE, 1.5, connect="segments")
+        self.dots = scene.Markers(parent=s)
         self.dots.set_data(np.zeros((1, 2), np.float32), size=0)
         # Under the pan/zoom camera vispy's y anchors are flipped: "top" stands text on its position.
         self.labels = scene.Text("", color=style.INK, font_size=LABEL_PT, anchor_x="center", anchor_y="top",
-                                 parent=scene_)
-        self.peak.order, self.trace.order, self.noise.order = 1, 2, 3
-        self.dots.order, self.labels.order = 4, 5
+                                 parent=s)
+        self.peak.order, self.trace.order, self.noise.order, self.dots.order, self.labels.order = 1, 2, 3, 4, 5
         self._frame: DisplayFrame | None = None
         self._noise_level: float | None = None
         self.listeners.append(self._relayout)
@@ -183,7 +315,7 @@ class SpectrumPlot(Plot):
             self.show_frame(self._frame)
 
     def fit(self, frame: DisplayFrame) -> None:
-        """Frame the plan: from 0 Hz (or the lowest component) past the highest component."""
+        """Frame the plan: from 0 Hz (or below the lowest component) past the highest component."""
         nyq = frame.rate_hz / 2.0 if frame.rate_hz else 24000.0
         freqs = [m.frequency_hz for m in frame.markers]
         if frame.is_complex:
@@ -206,8 +338,6 @@ class SpectrumPlot(Plot):
     def show_frame(self, frame: DisplayFrame) -> None:
         self._frame = frame
         if frame.level_dbfs is not None:
-            if self.log and frame.is_complex:
-                pass  # a log axis has no negative frequencies: the view refuses it (see window)
             x = self.x_of(frame.frequencies_hz).astype(np.float32)
             self.trace.set_data(np.column_stack((x, frame.level_dbfs)))
             if frame.peak_dbfs is not None:
@@ -217,17 +347,17 @@ class SpectrumPlot(Plot):
                 self.peak.visible = False
         self._noise_level = frame.noise_floor_dbfs
         if frame.noise_floor_dbfs is not None and frame.analysis_bandwidth_hz:
-            self.legend.text = (f"- - -  noise floor {frame.noise_floor_dbfs:.1f} dBFS in "
-                                f"{frame.analysis_bandwidth_hz:.1f} Hz (analysis bandwidth)"
-                                ).replace("-", "\u2212").replace("\u2212 \u2212 \u2212", "- - -")
+            self.set_legend(f"- - -  noise floor {frame.noise_floor_dbfs:.1f} dBFS in "
+                            f"{frame.analysis_bandwidth_hz:.1f} Hz (analysis bandwidth)".replace("-", MINUS)
+                            .replace(f"{MINUS} {MINUS} {MINUS}", "- - -"))
         else:
-            self.legend.text = ""
+            self.set_legend("")
         self._relayout()
 
     def _relayout(self) -> None:
         """Noise line across the view, markers and their labels placed clear of each other."""
         r = self.rect
-        px, py = self.pixel_size()
+        px, _ = self.pixel_size()
         if self._noise_level is not None:
             self.noise.set_data(dashed_hline(r.left, r.right, self._noise_level, 6 * px))
             self.noise.visible = True
@@ -282,7 +412,7 @@ def place_labels(markers, xs, ys, rect, size_px, font_pt: float, trace_x=None, t
             return h_px
         return y_px(float(np.max(trace_y[i0:i1])))
 
-    font_px = font_pt * 96.0 / 72.0
+    font_px = font_pt * PX_PER_PT
     line_px = font_px * 1.3
     peaks = [((x - rect.left) / rect.width * w_px, y_px(y)) for x, y in zip(xs, ys)]
     placed: list[tuple[float, float, float, float]] = list(reserved)
@@ -341,18 +471,14 @@ def place_labels(markers, xs, ys, rect, size_px, font_pt: float, trace_x=None, t
 
 
 class WaveformPlot(Plot):
-    """A few milliseconds of the captured audio and its envelope (|analytic signal|)."""
+    """A few milliseconds of the captured audio and its envelope (|analytic signal|), ±."""
 
-    def __init__(self, grid, row: int, col: int) -> None:
-        super().__init__(grid, row, col, "Waveform and envelope", "time, ms", "amplitude, FS", value_ticks(5),
-                         value_ticks(4), y_axis_width=62)
+    def __init__(self, host: PlotCanvas) -> None:
+        super().__init__(host, "Waveform and envelope", "time, ms", "amplitude, FS", value_ticks(5),
+                         value_ticks(4), y_axis_width=60)
         s = self.view.scene
-        self.waves = [scene.Line(np.zeros((2, 2), np.float32), color=c, width=1, method="gl", antialias=False,
-                                 parent=s) for c in ("#8a9aa8", "#c2a86a")]
-        self.env = scene.Line(np.zeros((2, 2), np.float32), color=style.INK, width=2, method="gl",
-                              antialias=False, parent=s)
-        self.neg_env = scene.Line(np.zeros((2, 2), np.float32), color=style.INK, width=1, method="gl",
-                                  antialias=False, parent=s)
+        self.waves = [_line(s, c) for c in ("#8a9aa8", "#9cc0b4")]  # channel 1 (or I), Q
+        self.env = _line(s, style.INK, 2.0, connect="segments")
         self._scale = 1.0
         self._span = 4.0
         self.set_range(x=(0, 4), y=(-1, 1))
@@ -367,8 +493,10 @@ class WaveformPlot(Plot):
                 line.visible = True
             else:
                 line.visible = False
-        self.env.set_data(np.column_stack((t_ms, frame.envelope)))
-        self.neg_env.set_data(np.column_stack((t_ms, -frame.envelope)))
+        upper = np.column_stack((t_ms, frame.envelope))
+        pairs = np.stack((upper[:-1], upper[1:]), axis=1).reshape(-1, 2)
+        lower = pairs * np.array([1.0, -1.0], np.float32)
+        self.env.set_data(np.concatenate((pairs, lower)).astype(np.float32))
         peak = float(np.max(frame.envelope)) if frame.envelope.size else 1.0
         span = float(t_ms[-1]) if t_ms.size else 4.0
         want = _nice_ceiling(max(peak, 1e-6) * 1.15)
@@ -380,16 +508,13 @@ class WaveformPlot(Plot):
 class PatternPlot(Plot):
     """Measured envelope against the envelope of the fitted tones alone: a line if linear."""
 
-    def __init__(self, grid, row: int, col: int) -> None:
-        super().__init__(grid, row, col, "Envelope vs drive (linearity)", "drive: envelope of the fitted tones, FS",
-                         "measured envelope, FS", value_ticks(4), value_ticks(4), y_axis_width=52)
+    def __init__(self, host: PlotCanvas) -> None:
+        super().__init__(host, "Envelope vs drive", "drive: envelope of the fitted tones, FS",
+                         "measured envelope, FS", value_ticks(4), value_ticks(4), y_axis_width=60)
         s = self.view.scene
-        self.ideal = scene.Line(np.zeros((2, 2), np.float32), color=style.NOISE, width=1, connect="segments",
-                                method="gl", antialias=False, parent=s)
+        self.ideal = _line(s, style.NOISE, connect="segments")
         self.points = scene.Markers(parent=s)
         self.points.set_data(np.zeros((1, 2), np.float32), size=0)
-        self.note = scene.Text("", color=style.INK_SOFT, font_size=LABEL_PT, anchor_x="left", anchor_y="bottom",
-                               parent=s)
         self._scale = 1.0
         self.set_range(x=(0, 1), y=(0, 1))
 
@@ -397,48 +522,38 @@ class PatternPlot(Plot):
         if frame.drive is None or frame.measured is None or frame.drive.size == 0:
             self.points.visible = False
             self.ideal.visible = False
-            self.note.text = "needs the fitted tones of a readout"
-            self.note.pos = (0.03 * self._scale, 0.95 * self._scale)
+            self.set_legend("needs fitted tones")
             return
         top = _nice_ceiling(max(float(frame.drive.max()), float(frame.measured.max()), 1e-6) * 1.1)
         if abs(math.log(top / self._scale)) > math.log(1.4):
             self._scale = top
             self.set_range(x=(0, top), y=(0, top))
-        self.ideal.set_data(dashed_segment((0.0, 0.0), (self._scale, self._scale)))
+            self.ideal.set_data(dashed_segment((0.0, 0.0), (top, top)))
         self.ideal.visible = True
-        if len(frame.pattern_tones_hz) < 2:
-            self.note.text = "one tone: a steady envelope (use Two-tone for linearity)"
-            self.note.pos = (0.03 * self._scale, 0.97 * self._scale)
         colour = _rgba(style.IMD, 0.8)
         self.points.set_data(np.column_stack((frame.drive, frame.measured)), size=5, face_color=colour,
                              edge_width=0, symbol="disc")
         self.points.visible = True
-        if len(frame.pattern_tones_hz) >= 2:
-            self.note.text = "dashed: linear (measured = drive)"
-            self.note.pos = (0.03 * self._scale, 0.97 * self._scale)
+        self.set_legend("- - - linear" if len(frame.pattern_tones_hz) >= 2 else "one tone: use two")
 
 
 class TrendPlot(Plot):
     """The chosen figure over the last minutes, with the best so far."""
 
-    def __init__(self, grid, row: int, col: int, minutes: float = 5.0) -> None:
-        super().__init__(grid, row, col, "Trend", "seconds ago", "dB", value_ticks(5), value_ticks(5),
-                         y_axis_width=52)
+    def __init__(self, host: PlotCanvas, minutes: float = 5.0) -> None:
+        super().__init__(host, "Trend", "seconds ago", "dB", value_ticks(5), value_ticks(5), y_axis_width=60)
         s = self.view.scene
         self.seconds = minutes * 60.0
         self.history: deque[tuple[float, float]] = deque()
-        self.line = scene.Line(np.zeros((2, 2), np.float32), color=style.TRACE, width=2, method="gl",
-                               antialias=False, parent=s)
-        self.best_line = scene.Line(np.zeros((2, 2), np.float32), color=style.BEST, width=1.5,
-                                    connect="segments", method="gl", antialias=False, parent=s)
-        self.best_label = scene.Text("", color=style.BEST, font_size=LABEL_PT, anchor_x="left",
-                                     anchor_y="top", parent=s)
+        self.line = _line(s, style.TRACE, 2.0)
+        self.best_line = _line(s, style.BEST, 1.5, connect="segments")
         self._y = (0.0, 1.0)
         self.set_range(x=(-self.seconds, 0), y=self._y)
 
     def set_figure(self, title: str, unit: str) -> None:
-        self.title.text = title
-        self.y_axis.axis.axis_label = unit
+        self.title = title
+        self.y_title = unit
+        self.host.chrome_changed()
         self.clear()
 
     def clear(self) -> None:
@@ -454,7 +569,7 @@ class TrendPlot(Plot):
     def redraw(self, now: float, best: float | None, unit: str) -> None:
         if not self.history:
             self.line.visible = self.best_line.visible = False
-            self.best_label.text = ""
+            self.set_legend("")
             return
         data = np.array(self.history, dtype=np.float64)
         data[:, 0] -= now
@@ -474,12 +589,11 @@ class TrendPlot(Plot):
             px, _ = self.pixel_size()
             self.best_line.set_data(dashed_hline(-self.seconds, 0.0, best, 5 * px))
             self.best_line.visible = True
-            _, py = self.pixel_size()
-            self.best_label.text = f"best {best:.1f} {unit}".replace("-", "\u2212")
-            self.best_label.pos = (-self.seconds + 6 * px, best + 3 * py)
+            self.set_legend(f"- - -  best {best:.1f} {unit}".replace("-", MINUS)
+                            .replace(f"{MINUS} {MINUS} {MINUS}", "- - -"), style.BEST)
         else:
             self.best_line.visible = False
-            self.best_label.text = ""
+            self.set_legend("")
 
 
 def _nice_ceiling(v: float) -> float:
@@ -489,59 +603,3 @@ def _nice_ceiling(v: float) -> float:
         if v <= m * power + 1e-12:
             return m * power
     return 10.0 * power
-
-
-class PlotCanvas:
-    """One vispy canvas (one GL context) holding any number of plots in a grid."""
-
-    def __init__(self, parent=None) -> None:
-        self.canvas = scene.SceneCanvas(keys=None, bgcolor=style.PAPER, parent=parent, show=False)
-        self.grid = self.canvas.central_widget.add_grid(spacing=14, margin=6)
-        self.plots: list[Plot] = []
-        self.canvas.events.resize.connect(self._resized)
-        self.last_draw = time.perf_counter()
-
-    @property
-    def native(self):
-        return self.canvas.native
-
-    def add(self, plot: Plot) -> Plot:
-        self.plots.append(plot)
-        return plot
-
-    def _resized(self, event=None) -> None:
-        # The grid lays its cells out after this event: refresh the axes once it has.
-        QTimer.singleShot(0, self.refresh_axes)
-
-    def refresh_axes(self) -> None:
-        for plot in self.plots:
-            plot.refresh_axes()
-
-    def update(self) -> None:
-        self.canvas.update()
-
-    def share_fonts(self) -> int:
-        """Give every text in the canvas one font manager, so each glyph is rendered once.
-
-        vispy gives each text visual (every axis has two) its own, and renders each glyph's
-        distance field on the CPU for each of them: seconds at start-up under software OpenGL.
-        """
-        fonts = FontManager(method="cpu")
-        count = 0
-        for visual in _text_visuals(self.canvas.scene, set()):
-            visual._font_manager = fonts
-            visual._update_font()
-            count += 1
-        return count
-
-
-def _text_visuals(node, seen: set):
-    if id(node) in seen:
-        return
-    seen.add(id(node))
-    if isinstance(node, TextVisual):
-        yield node
-    for sub in getattr(node, "_subvisuals", ()):
-        yield from _text_visuals(sub, seen)
-    for child in getattr(node, "children", ()):
-        yield from _text_visuals(child, seen)

@@ -19,7 +19,12 @@ from PyQt6.QtCore import QObject, QTimer, pyqtSignal
 from rtanalyzer.gui.frames import DisplayPrep
 from rtanalyzer.live.session import SessionConfig, build_engine
 
-DRAIN_MS = 40  # 25 ticks/s: each readout at 20/s is picked up within a tick
+DRAIN_MS = 40  # 25 ticks/s: the queue is emptied at least as fast as readouts come
+DISPLAY_RATES = (10.0, 15.0, 20.0)
+#: Redraws per second. Under software OpenGL each redraw composes the whole window (about a
+#: third of a core at 20/s on the development machine, see scripts/bench_gui.py); 15 is live
+#: enough for trimming and leaves the analysis its core.
+DEFAULT_DISPLAY_HZ = 15.0
 
 
 class SessionRunner(QObject):
@@ -39,6 +44,9 @@ class SessionRunner(QObject):
         self.config: SessionConfig | None = None
         self.paused = False
         self.peak_hold = False
+        self.display_hz = DEFAULT_DISPLAY_HZ
+        self._last_shown = 0.0
+        self._held = None  # the newest readout, not shown yet
         self._pending: SessionConfig | None = None
         self._worker: threading.Thread | None = None
         self._fresh = None  # the engine a worker just built (for stop() while it is in flight)
@@ -159,20 +167,26 @@ class SessionRunner(QObject):
     # -- the timer --------------------------------------------------------------------------------
 
     def drain(self) -> None:
-        """Take every queued readout, keep the newest; pick up the newest display frame."""
+        """Take every queued readout, keep the newest; at the display rate, hand it and the
+        newest display frame on."""
         engine = self.engine
         if engine is None:
             return
-        newest = None
         while True:
             try:
-                newest = engine.readouts.get_nowait()
+                readout = engine.readouts.get_nowait()
             except queue.Empty:
                 break
-            if newest.result is not None or newest.error not in ("waiting for audio",):
-                self._arrivals.append(newest.t)  # the engine's own clock: the rate it makes them at
-        if newest is not None:
-            self.readout.emit(newest)
+            self._held = readout
+            if readout.result is not None or readout.error not in ("waiting for audio",):
+                self._arrivals.append(readout.t)  # the engine's own clock: the rate it makes them at
+        now = time.monotonic()
+        if now - self._last_shown < 1.0 / self.display_hz - DRAIN_MS / 2000.0:
+            return
+        self._last_shown = now
+        if self._held is not None:
+            held, self._held = self._held, None
+            self.readout.emit(held)
         prep = self.prep
         frame = prep.latest if prep is not None else None
         if frame is not None and frame is not self._last_frame:

@@ -1,7 +1,7 @@
 """Axis ticks for the plots: 1-2-5 steps on linear axes, decades with 2 and 5 on log frequency.
 
-vispy's axes tick linear scales only and print every number with ``%g``; a small
-:class:`Ticker` subclass lets them show kHz on a log axis and a proper minus sign.
+Pure functions of the visible range, returning tick values and their labels (kHz as "2k", a
+real minus sign); :mod:`rtanalyzer.gui.plots` draws them.
 """
 
 from __future__ import annotations
@@ -10,7 +10,6 @@ import math
 from typing import Callable
 
 import numpy as np
-from vispy.visuals.axis import Ticker
 
 TickFunction = Callable[[float, float], tuple[np.ndarray, np.ndarray, list[str]]]
 
@@ -94,18 +93,3 @@ def value_ticks(target: int = 6) -> TickFunction:
         return major, minor, [format_number(v, step) for v in major]
 
     return ticks
-
-
-class FunctionTicker(Ticker):
-    """A vispy Ticker whose ticks come from a function of the visible range."""
-
-    def __init__(self, axis, function: TickFunction) -> None:
-        super().__init__(axis)
-        self.function = function
-
-    def _get_tick_frac_labels(self):
-        d0, d1 = (float(v) for v in self.axis.domain)
-        if d1 == d0 or not (math.isfinite(d0) and math.isfinite(d1)):
-            return np.array([]), np.array([]), []
-        major, minor, labels = self.function(d0, d1)
-        return (np.asarray(major, dtype=float) - d0) / (d1 - d0), (np.asarray(minor, dtype=float) - d0) / (d1 - d0), labels

@@ -28,6 +28,19 @@ def parse_readout(text: str) -> float | None:
         return None
 
 
+def set_text(label: QLabel, text: str) -> None:
+    """Change a label only when its text changes (a change costs a relayout and a repaint)."""
+    if label.text() != text:
+        label.setText(text)
+
+
+def set_style(widget: QWidget, sheet: str) -> None:
+    """Change a style sheet only when it changes (each change re-polishes the widget)."""
+    if widget.property("rta_sheet") != sheet:
+        widget.setProperty("rta_sheet", sheet)
+        widget.setStyleSheet(sheet)
+
+
 def _font(points: float, weight: QFont.Weight = QFont.Weight.Normal) -> QFont:
     font = QFont()
     font.setPointSizeF(points)
@@ -85,23 +98,24 @@ class ReadoutTile(QFrame):
         self.unit_label.setFont(_font(style.UNIT_PT))
         self.unit_label.setAlignment(Qt.AlignmentFlag.AlignLeft | Qt.AlignmentFlag.AlignBaseline)
         self.change_label = QLabel("")
-        self.change_label.setFont(_font(14, QFont.Weight.DemiBold))
-        self.change_label.setAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
+        self.change_label.setFont(_font(style.SMALL_PT + 2, QFont.Weight.Bold))
+        self.change_label.setAlignment(Qt.AlignmentFlag.AlignLeft | Qt.AlignmentFlag.AlignTop)
         self.detail_label = QLabel("")
         self.detail_label.setWordWrap(True)
         self.detail_label.setMinimumHeight(36)
         self.detail_label.setAlignment(Qt.AlignmentFlag.AlignLeft | Qt.AlignmentFlag.AlignTop)
         self.detail_label.setFont(_font(style.SMALL_PT + 1))
         self.detail_label.setStyleSheet(f"color: {style.INK_SOFT};")
-        layout.addWidget(self.title_label, 0, 0)
-        layout.addWidget(self.change_label, 0, 1, 2, 1, Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignTop)
+        layout.addWidget(self.title_label, 0, 0, 1, 2)
         value_row = QHBoxLayout()
         value_row.setSpacing(8)
         value_row.addWidget(self.value_label, 0, Qt.AlignmentFlag.AlignBaseline)
         value_row.addWidget(self.unit_label, 0, Qt.AlignmentFlag.AlignBaseline)
         value_row.addStretch(1)
         layout.addLayout(value_row, 1, 0, 1, 2)
-        layout.addWidget(self.detail_label, 2, 0, 1, 2)
+        layout.addWidget(self.change_label, 2, 0, Qt.AlignmentFlag.AlignLeft | Qt.AlignmentFlag.AlignTop)
+        layout.addWidget(self.detail_label, 2, 1)
+        layout.setColumnStretch(1, 1)
         self.value: float | None = None
         self.set_unavailable("waiting for the first readout")
 
@@ -114,28 +128,32 @@ class ReadoutTile(QFrame):
             self.set_unavailable(detail or "no figure")
             return
         self.value = value
-        self.value_label.setText(f"{bound + ' ' if bound else ''}{signed(value)}")
-        self.value_label.setStyleSheet(f"color: {style.INK};")
-        self.unit_label.setStyleSheet(f"color: {style.INK};")
-        self.detail_label.setText(detail)
+        set_text(self.value_label, f"{bound + ' ' if bound else ''}{signed(value)}")
+        set_style(self.value_label, f"color: {style.INK};")
+        set_style(self.unit_label, f"color: {style.INK};")
+        set_text(self.detail_label, detail)
+        if bound:  # a bound moves with the noise, not with a trim: no direction to show
+            self.tracker.reset()
+            set_text(self.change_label, "")
+            return
         change = self.tracker.update(t, value)
         if change is None or abs(change) < self.tracker.steady_db:
-            self.change_label.setText("steady" if change is not None else "")
-            self.change_label.setStyleSheet(f"color: {style.INK_SOFT};")
+            set_text(self.change_label, "● steady" if change is not None else "")
+            set_style(self.change_label, f"color: {style.INK_SOFT};")
             return
         better = (change > 0) == self.larger_is_better
         arrow = "▲" if change > 0 else "▼"
         colour = style.BETTER if better else style.WORSE
-        self.change_label.setText(f"{arrow} {abs(change):.1f} dB\n{'better' if better else 'worse'}")
-        self.change_label.setStyleSheet(f"color: {colour};")
+        set_text(self.change_label, f"{arrow} {abs(change):.1f} dB {'better' if better else 'worse'}")
+        set_style(self.change_label, f"color: {colour};")
 
     def set_unavailable(self, why: str) -> None:
         self.value = None
-        self.value_label.setText("—")
-        self.value_label.setStyleSheet(f"color: {style.RULE};")
-        self.unit_label.setStyleSheet(f"color: {style.RULE};")
-        self.change_label.setText("")
-        self.detail_label.setText(why)
+        set_text(self.value_label, "—")
+        set_style(self.value_label, f"color: {style.RULE};")
+        set_style(self.unit_label, f"color: {style.RULE};")
+        set_text(self.change_label, "")
+        set_text(self.detail_label, why)
         self.tracker.reset()
 
 
@@ -223,21 +241,23 @@ class MetersTile(QFrame):
         self.xrun_label.setWordWrap(True)
         self._layout.addWidget(self.xrun_label)
         self.rows: list[tuple[MeterBar, QLabel, ClipLight]] = []
+        self._row_widgets: list[QWidget] = []
+        self._names: list[str] = []
         self.set_channels(1)
 
     def set_channels(self, count: int, names: list[str] | None = None) -> None:
-        if len(self.rows) == count:
+        names = [names[ch] if names and ch < len(names) else f"in {ch + 1}" for ch in range(count)]
+        if names == self._names:
             return
-        while self._rows_box.count():
-            item = self._rows_box.takeAt(0)
-            if item.layout() is not None:
-                while item.layout().count():
-                    w = item.layout().takeAt(0).widget()
-                    if w is not None:
-                        w.deleteLater()
-        self.rows = []
-        for ch in range(count):
-            name = names[ch] if names and ch < len(names) else f"in {ch + 1}"
+        for row in self._row_widgets:
+            self._rows_box.removeWidget(row)
+            row.deleteLater()
+        self._row_widgets, self.rows, self._names = [], [], names
+        for name in names:
+            row_widget = QWidget()
+            row = QVBoxLayout(row_widget)
+            row.setContentsMargins(0, 0, 0, 0)
+            row.setSpacing(0)
             head = QHBoxLayout()
             label = QLabel(name)
             label.setFont(_font(style.SMALL_PT, QFont.Weight.DemiBold))
@@ -249,11 +269,10 @@ class MetersTile(QFrame):
             head.addWidget(clip)
             numbers = QLabel("")
             numbers.setFont(_font(style.SMALL_PT))
-            row = QVBoxLayout()
-            row.setSpacing(0)
             row.addLayout(head)
             row.addWidget(numbers)
-            self._rows_box.addLayout(row)
+            self._rows_box.addWidget(row_widget)
+            self._row_widgets.append(row_widget)
             self.rows.append((bar, numbers, clip))
 
     def show_levels(self, levels: dict, xruns: dict, names: list[str] | None = None) -> None:
@@ -271,13 +290,13 @@ class MetersTile(QFrame):
             rm_text = "—" if rm is None else signed(rm)
             clipped = counts[ch] if ch < len(counts) else 0
             extra = f" · {clipped} clipped samples" if clipped else ""
-            numbers.setText(f"peak {pk_text} dBFS · RMS {rm_text} dBFS{extra}")
+            set_text(numbers, f"peak {pk_text} dBFS · RMS {rm_text} dBFS{extra}")
         over = xruns.get("input_overflows", 0)
         under = xruns.get("output_underflows", 0)
         dropped = xruns.get("dropped_blocks", 0)
         colour = style.WORSE if (over or under or dropped) else style.INK_SOFT
-        self.xrun_label.setStyleSheet(f"color: {colour};")
-        self.xrun_label.setText(f"overflows {over} · underflows {under} · dropped {dropped}")
+        set_style(self.xrun_label, f"color: {colour};")
+        set_text(self.xrun_label, f"overflows {over} · underflows {under} · dropped {dropped}")
 
 
 class Banner(QLabel):

@@ -11,7 +11,6 @@ from __future__ import annotations
 import csv
 import json
 import math
-import time
 from datetime import datetime
 from pathlib import Path
 from typing import Any
@@ -42,11 +41,11 @@ from rtanalyzer.gui.controls import ControlsPanel
 from rtanalyzer.gui.dialogs import cautions_dialog, shortcuts_dialog, truth_text, TextDialog
 from rtanalyzer.gui.frames import DisplayFrame
 from rtanalyzer.gui.plots import PatternPlot, PlotCanvas, SpectrumPlot, TrendPlot, WaveformPlot
-from rtanalyzer.gui.runner import SessionRunner
+from rtanalyzer.gui.runner import DISPLAY_RATES, SessionRunner
 from rtanalyzer.gui.settings import WindowSettings
-from rtanalyzer.gui.widgets import Banner, MetersTile, ReadoutTile, signed
+from rtanalyzer.gui.widgets import Banner, MetersTile, ReadoutTile, set_style, set_text, signed
+from rtanalyzer.generator.signals import TwoTone
 from rtanalyzer.live.session import SessionConfig, plan_settings
-from rtanalyzer.sources.bench.knobs import BenchKnobs
 
 MUTED_CAPTURE_DBFS = -120.0  # a muted generator on the bench: the receiver hears only noise
 STATUS_MS = 500
@@ -115,6 +114,8 @@ class MainWindow(QMainWindow):
         self.controls.changed.connect(self._control_changed)
         self.controls.refresh_devices_button.clicked.connect(self.refresh_devices)
         log, hold = settings.view()
+        saved_rate = settings.get("view/redraws_per_s", self.runner.display_hz)
+        self.set_display_rate(saved_rate if saved_rate in DISPLAY_RATES else self.runner.display_hz)
         self.log_box.setChecked(log)
         self.hold_box.setChecked(hold)
         self.runner.set_peak_hold(hold)
@@ -125,7 +126,9 @@ class MainWindow(QMainWindow):
         if geometry is not None:
             self.restoreGeometry(geometry)
         else:
-            self.resize(1600, 1000)
+            screen = QApplication.primaryScreen()
+            room = screen.availableGeometry() if screen is not None else None
+            self.resize(min(1600, room.width()) if room else 1600, min(1000, room.height()) if room else 1000)
         if state is not None:
             self.restoreState(state)
         self.status_timer = QTimer(self)
@@ -177,15 +180,19 @@ class MainWindow(QMainWindow):
         bar.addStretch(1)
         bar.addWidget(hint)
         outer.addLayout(bar)
-        self.plots = PlotCanvas(central)
-        grid = self.plots.grid
-        self.spectrum = self.plots.add(SpectrumPlot(grid, 0, 0, col_span=3))  # over the three below
-        self.waveform = self.plots.add(WaveformPlot(grid, 1, 0))
-        self.pattern = self.plots.add(PatternPlot(grid, 1, 1))
-        self.trend = self.plots.add(TrendPlot(grid, 1, 2))
-        self.plots.share_fonts()
-        self.plots.native.setMinimumHeight(520)
-        outer.addWidget(self.plots.native, 1)
+        # Two canvases: the spectrum, redrawn with every readout, and the three smaller plots,
+        # redrawn at half that rate (under software OpenGL every canvas frame costs).
+        self.plots = PlotCanvas()
+        self.spectrum = self.plots.add(SpectrumPlot(self.plots))
+        self.lower = PlotCanvas()
+        self.waveform = self.lower.add(WaveformPlot(self.lower), 1.0)
+        self.pattern = self.lower.add(PatternPlot(self.lower), 0.8)
+        self.trend = self.lower.add(TrendPlot(self.lower), 1.0)
+        for canvas, stretch, height in ((self.plots, 3, 300), (self.lower, 2, 220)):
+            canvas.share_fonts()
+            canvas.native.setMinimumHeight(height)
+            outer.addWidget(canvas.native, stretch)
+        self._frames_shown = 0
         self.setCentralWidget(central)
 
         self.controls = ControlsPanel()
@@ -253,6 +260,14 @@ class MainWindow(QMainWindow):
         view_menu.addAction(action("Frame the plan", self.fit_spectrum, "F"))
         view_menu.addAction(action("Log / linear frequency", lambda: self.log_box.toggle(), "L"))
         view_menu.addAction(action("Peak hold on / off", lambda: self.hold_box.toggle(), "P"))
+        rates = view_menu.addMenu("Redraws per second")
+        self.rate_actions = {}
+        for hz in DISPLAY_RATES:
+            act = QAction(f"{hz:g}", self)
+            act.setCheckable(True)
+            act.triggered.connect(lambda _=False, hz=hz: self.set_display_rate(hz))
+            rates.addAction(act)
+            self.rate_actions[hz] = act
         view_menu.addAction(self.dock.toggleViewAction())
         help_menu = menu.addMenu("&Help")
         help_menu.addAction(action("Safety cautions", self.show_cautions, "F1"))
@@ -314,8 +329,7 @@ class MainWindow(QMainWindow):
         self.config = self.config.with_changes(source=kind)
         if kind == "file" and not self.config.file:
             self.banner.say("Choose a WAV or FLAC capture under Source ▸ File, and say which tones it holds "
-                            "under Frequency plan.")
-            self.runner.timer.stop()
+                            "under Frequency plan ▸ Tones in it. Until then the previous source runs on.")
             return
         self.banner.say(None)
         if kind == "sim":
@@ -462,6 +476,11 @@ class MainWindow(QMainWindow):
                 (source.mute if muted else source.unmute)()
         self.statusBar().showMessage("Generator muted." if muted else "Generator playing.", 3000)
 
+    def set_display_rate(self, hz: float) -> None:
+        self.runner.display_hz = float(hz)
+        for rate, act in self.rate_actions.items():
+            act.setChecked(rate == hz)
+
     def fit_spectrum(self) -> None:
         if self.last_frame is not None:
             self.spectrum.fit(self.last_frame)
@@ -557,8 +576,8 @@ class MainWindow(QMainWindow):
         if measurement == self._figure_key:
             return
         self._figure_key = measurement
-        title, unit = FIGURES.get(measurement, ("Figure", "dB"))
-        self.trend.set_figure(f"Trend: {title}", unit)
+        title, unit = FIGURES.get(measurement, ("figure", "dB"))
+        self.trend.set_figure("Trend", f"{title}, {unit}")
 
     # -- readouts -------------------------------------------------------------------------------------
 
@@ -573,8 +592,8 @@ class MainWindow(QMainWindow):
             if readout.error not in ("settling",):
                 for tile in self.tiles.values():
                     tile.set_unavailable(readout.error or "no figures")
-            self.message.setText(f"No figures: {readout.error}" if readout.error else "")
-            self.message.setStyleSheet(f"color: {style.WORSE};")
+            set_text(self.message, f"No figures: {readout.error}" if readout.error else "")
+            set_style(self.message, f"color: {style.WORSE};")
             return
         measurement = readout.measurement
         if measurement == "sideband":
@@ -586,12 +605,10 @@ class MainWindow(QMainWindow):
             notes.insert(0, "the input clipped: figures are not trustworthy")
         if readout.sweep is not None:
             notes.insert(0, f"sweep step {readout.sweep['step'] + 1} at {readout.sweep['frequency_hz']:g} Hz")
-        self.message.setText(" · ".join(notes))
-        self.message.setStyleSheet(f"color: {style.WORSE if result.get('clipped') else style.INK_SOFT};")
+        set_text(self.message, " · ".join(notes))
+        set_style(self.message, f"color: {style.WORSE if result.get('clipped') else style.INK_SOFT};")
         best = readout.best or {}
         self.trend.add(t, best.get("value"))
-        unit = FIGURES.get(measurement, ("", "dB"))[1]
-        self.trend.redraw(t, best.get("best"), unit)
 
     def _sideband_tiles(self, t: float, r: dict) -> None:
         points = r.get("points") or []
@@ -600,21 +617,24 @@ class MainWindow(QMainWindow):
         if points and worst is not None:
             p = min(points, key=lambda q: q.get("sideband_suppression_db") or math.inf)
             if p.get("unwanted_detected"):
-                detail = (f"at {p['tone_hz']:g} Hz · unwanted {signed(p['unwanted_dbfs'])} dBFS, "
+                detail = (f"{p['tone_hz']:g} Hz tone: unwanted {signed(p['unwanted_dbfs'])}, "
                           f"wanted {signed(p['wanted_dbfs'])} dBFS")
             else:
-                detail = f"at {p['tone_hz']:g} Hz · unwanted under the noise"
+                detail = f"{p['tone_hz']:g} Hz tone: unwanted under the noise"
             if len(points) > 1:
-                detail = f"worst of {len(points)} tones, " + detail
+                detail = f"worst of {len(points)}: " + detail
         self.tiles["sideband"].set_figure(t, worst, "≥" if r.get("worst_is_lower_bound") else "",
                                           detail or "no wanted tone found")
         carrier = r.get("carrier_suppression_db")
         if r.get("carrier_detected"):
-            detail = f"carrier {signed(r['carrier_dbfs'])} dBFS at {r['carrier_hz']:.1f} Hz"
+            detail = f"{signed(r['carrier_dbfs'])} dBFS at {r['carrier_hz']:.1f} Hz"
         else:
             detail = "carrier under the noise" + (f" near {r['carrier_hz']:.0f} Hz" if r.get("carrier_hz") else "")
         self.tiles["carrier"].set_figure(t, carrier, "" if r.get("carrier_detected") else "≥", detail)
-        self.tiles["imd"].set_unavailable("two-tone test only: choose Two-tone in the generator")
+        if isinstance(self.config.signal, TwoTone):
+            self.tiles["imd"].set_unavailable("choose it under Measurement ▸ Figures")
+        else:
+            self.tiles["imd"].set_unavailable("a two-tone figure: Generator ▸ Two-tone")
 
     def _twotone_tiles(self, t: float, r: dict) -> None:
         worst = r.get("worst_imd_db_pep")
@@ -628,30 +648,41 @@ class MainWindow(QMainWindow):
         if r.get("pep_dbfs") is not None:
             detail += f" · PEP {signed(r['pep_dbfs'])} dBFS"
         self.tiles["imd"].set_figure(t, worst, "≤" if r.get("worst_imd_is_bound") else "", detail.strip(" ·"))
-        self.tiles["sideband"].set_unavailable("single-tone figure: choose Tone in the generator")
-        self.tiles["carrier"].set_unavailable("single-tone figure: choose Tone in the generator")
+        why = "a one-tone figure: Generator ▸ Tone"
+        self.tiles["sideband"].set_unavailable(why)
+        self.tiles["carrier"].set_unavailable(why)
 
     def show_frame(self, frame: DisplayFrame) -> None:
         self.last_frame = frame
         self.spectrum.show_frame(frame)
-        self.waveform.show_frame(frame)
-        self.pattern.show_frame(frame)
         if self._fit_pending and frame.markers:
             self._fit_pending = False
             self.spectrum.fit(frame)
         self.plots.update()
+        self._frames_shown += 1
+        if self._frames_shown % 2 == 0:  # the smaller plots at half the rate
+            self.waveform.show_frame(frame)
+            self.pattern.show_frame(frame)
+            readout = self.last_readout
+            if readout is not None:
+                best = readout.best or {}
+                self.trend.redraw(readout.t, best.get("best"), FIGURES.get(readout.measurement, ("", "dB"))[1])
+            self.lower.update()
 
     def _update_status(self) -> None:
         engine = self.runner.engine
         if engine is None:
             return
         source = engine.source
-        self.source_label.setText(source.describe())
-        self.rate_label.setText(f"{source.rate_hz:g} Hz")
-        self.updates_label.setText(f"{self.runner.readouts_per_second():.1f} readouts/s")
+        set_text(self.source_label, source.describe())
+        set_text(self.rate_label, f"{source.rate_hz:g} Hz")
+        set_text(self.updates_label, f"{self.runner.readouts_per_second():.1f} readouts/s")
         x = source.counters.as_dict()
-        self.xrun_status.setText(f"xruns: {x['input_overflows']} over · {x['output_underflows']} under · "
-                                 f"{x['dropped_blocks']} dropped")
+        set_text(self.xrun_status, f"xruns: {x['input_overflows']} over · {x['output_underflows']} under · "
+                                   f"{x['dropped_blocks']} dropped")
+        prep = self.runner.prep
+        if prep is not None and prep.last_error:
+            self.statusBar().showMessage(f"The plots could not be drawn: {prep.last_error}", 2000)
 
     # -- exports --------------------------------------------------------------------------------------
 
@@ -727,6 +758,7 @@ class MainWindow(QMainWindow):
         s = self.settings
         s.save_session(self.config, self.generator)
         s.save_view(self.log_box.isChecked(), self.hold_box.isChecked())
+        s.put("view/redraws_per_s", self.runner.display_hz)
         s.save_window(self.saveGeometry(), self.saveState())
         s.sync()
 
