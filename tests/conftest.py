@@ -23,6 +23,12 @@ def _private_config_dir(tmp_path_factory, monkeypatch):
     monkeypatch.setenv("RTANALYZER_CONFIG_DIR", str(tmp_path_factory.mktemp("config")))
 
 
+@pytest.fixture(autouse=True)
+def _private_history_store(tmp_path_factory, monkeypatch):
+    """Nor to the real history: point the snapshot store at a tmp file (tests may set their own)."""
+    monkeypatch.setenv("RTANALYZER_STORE", str(tmp_path_factory.mktemp("store") / "history.sqlite3"))
+
+
 @pytest.fixture
 def cautions_already_shown():
     """The per-user first-run safety notice counts as shown (in the private config dir), so

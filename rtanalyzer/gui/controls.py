@@ -287,7 +287,7 @@ class ControlsPanel(QWidget):
         self.measurement = QComboBox()
         self.measurement.setObjectName("measurement")
         for key, name in ((None, "as the signal suggests"), ("sideband", "sideband and carrier"),
-                          ("twotone", "two-tone IMD")):
+                          ("twotone", "two-tone IMD"), ("quadrature", "90° network (stereo)")):
             self.measurement.addItem(name, key)
         self.measurement.currentIndexChanged.connect(lambda _: self._emit("measurement"))
         form.addRow("Figures", self.measurement)

@@ -36,10 +36,12 @@ from PyQt6.QtWidgets import (
 from rtanalyzer.cli.cautions import config_dir
 from rtanalyzer.errors import RtaError
 from rtanalyzer.gui import style
+from rtanalyzer.gui.band_view import attach as attach_band_view
 from rtanalyzer.gui.choices import GeneratorChoice
 from rtanalyzer.gui.controls import ControlsPanel
 from rtanalyzer.gui.dialogs import cautions_dialog, shortcuts_dialog, truth_text, TextDialog
 from rtanalyzer.gui.frames import DisplayFrame
+from rtanalyzer.gui.history_view import HistoryHooks
 from rtanalyzer.gui.plots import PatternPlot, PlotCanvas, SpectrumPlot, TrendPlot, WaveformPlot
 from rtanalyzer.gui.runner import DISPLAY_RATES, SessionRunner
 from rtanalyzer.gui.settings import WindowSettings
@@ -106,6 +108,7 @@ class MainWindow(QMainWindow):
         self.runner = SessionRunner(self)
         self._build_ui()
         self._build_menus()
+        self.history = HistoryHooks(self)  # Save snapshot to the store, each new best, View ▸ History…
         self.runner.readout.connect(self.show_readout)
         self.runner.frame.connect(self.show_frame)
         self.runner.busy.connect(self._busy)
@@ -136,6 +139,7 @@ class MainWindow(QMainWindow):
         self.status_timer.timeout.connect(self._update_status)
         self.status_timer.start()
         self.cautions = None
+        attach_band_view(self)  # View ▸ Network band…, and the sweep progress
         self.runner.start(self._effective(config))
 
     # -- building -------------------------------------------------------------------------------------
@@ -243,7 +247,7 @@ class MainWindow(QMainWindow):
             return act
 
         file_menu = menu.addMenu("&File")
-        file_menu.addAction(action("Snapshot (picture and figures)", self.snapshot, "S", name="act_snapshot"))
+        file_menu.addAction(action("Save snapshot", self.snapshot, "S", name="act_snapshot"))
         file_menu.addSeparator()
         file_menu.addAction(action("Export window as PNG…", self._export_png_dialog, "Ctrl+E"))
         file_menu.addAction(action("Export figures as CSV…", lambda: self._export_dialog("csv")))
@@ -723,6 +727,8 @@ class MainWindow(QMainWindow):
         return path
 
     def snapshot(self) -> tuple[Path, Path]:
+        """Store the newest readout in the history; keep a picture and the figures beside it as files."""
+        snapshot_id = self.history.save_now()
         folder = config_dir() / "snapshots"
         stamp = datetime.now().strftime("%Y%m%d-%H%M%S")
         base = folder / f"rtanalyzer-{stamp}"
@@ -736,7 +742,8 @@ class MainWindow(QMainWindow):
         except (OSError, RtaError) as exc:
             self.statusBar().showMessage(f"Snapshot not saved: {exc}", 8000)
             raise
-        self.statusBar().showMessage(f"Snapshot saved: {png} and {data.name}", 10000)
+        saved = f"saved snapshot #{snapshot_id} · " if snapshot_id is not None else "not stored in the history · "
+        self.statusBar().showMessage(f"{saved}picture {png} and {data.name}", 10000)
         return png, data
 
     def _export_png_dialog(self) -> None:

@@ -110,6 +110,12 @@ def build_source(config: SessionConfig):
         if not config.file:
             raise RtaError("--source file needs --file F")
         return FileSource(read_capture(config.file), loop=config.loop, block=config.block)
+    if config.source == "sim" and config.measurement_name == "quadrature":
+        from rtanalyzer.generator.signals import Tone
+        from rtanalyzer.sources.network_source import NetworkSource
+
+        # The bench's network outputs (left = I, right = Q): what a phase-network capture holds.
+        return NetworkSource(config.knobs, config.signal or Tone(1000.0, -6.0), config.rate_hz, config.block)
     if config.source == "sim":
         from rtanalyzer.generator.signals import Tone
         from rtanalyzer.sources.bench_source import BenchSource
@@ -139,6 +145,8 @@ def plan_settings(config: SessionConfig, measurement: str) -> dict[str, Any]:
     settings: dict[str, Any] = {"carrier": carrier, "wanted": wanted or "auto"}
     if config.resolution_hz is not None:
         settings["resolution"] = config.resolution_hz
+    if measurement == "quadrature":  # carrier and side kept for the window's plan changes; unused
+        return {**settings, **_quadrature_settings(config)}
     tones = list(tones_of(config.signal)[0]) if config.signal is not None else list(config.tones_hz)
     if not tones:
         raise RtaError("say which tones the capture holds: --generate ..., --tone HZ or --tones F1 F2")
@@ -148,6 +156,19 @@ def plan_settings(config: SessionConfig, measurement: str) -> dict[str, Any]:
         settings["tones"] = tones
     else:
         settings["tone"] = tones
+    return settings
+
+
+def _quadrature_settings(config: SessionConfig) -> dict[str, Any]:
+    """Phase-network settings: the signal's steady tones (or the plan's) as an optional restriction;
+    none for a sweep or when nothing says them (every tone found is measured)."""
+    from rtanalyzer.generator.signals import Sweep
+
+    settings: dict[str, Any] = {"resolution": config.resolution_hz or config.rate_hz / live_nfft(config.rate_hz)}
+    if config.signal is not None and not isinstance(config.signal, Sweep):
+        settings["tone"] = list(tones_of(config.signal)[0])
+    elif config.signal is None and config.tones_hz:
+        settings["tone"] = list(config.tones_hz)
     return settings
 
 
@@ -161,5 +182,7 @@ def build_engine(config: SessionConfig) -> LiveEngine:
     settings = plan_settings(config, name)
     source = build_source(config)
     nfft = live_nfft(source.rate_hz, config.resolution_hz)
-    return LiveEngine(source, get(name), settings, channel=config.channel, iq=config.iq,
+    measurement = get(name)
+    iq = config.iq or getattr(measurement, "view", None) == "stereo"  # left + j·right
+    return LiveEngine(source, measurement, settings, channel=config.channel, iq=iq,
                       update_hz=config.update_hz, nfft=nfft, averages=config.averages)
