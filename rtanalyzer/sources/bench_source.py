@@ -14,7 +14,7 @@ from rtanalyzer.generator.signals import Sweep
 from rtanalyzer.generator.sweep import SweepPlan
 from rtanalyzer.sources.bench.knobs import BenchKnobs
 from rtanalyzer.sources.bench.model import Bench
-from rtanalyzer.sources.drive import tones_of
+from rtanalyzer.sources.drive import drive_at, tones_of
 from rtanalyzer.sources.live import Drive
 from rtanalyzer.sources.paced import PacedSource
 
@@ -88,12 +88,4 @@ class BenchSource(PacedSource):
         return out
 
     def drive_at(self, frame: int) -> Drive | None:
-        local = frame - self._start_frame
-        if local < 0:
-            return None
-        if self._plan is None:
-            return Drive(tones_of(self._signal)[0])
-        step, freq, settled = self._plan.step_at(local)
-        into_step = self._plan.dwell_frames - self._plan.frames_to_boundary(local)
-        settled_from = frame - into_step + self._plan.settle_frames
-        return Drive((freq,), settled, step, settled_from)
+        return drive_at(self._plan, tones_of(self._signal)[0], frame, self._start_frame)

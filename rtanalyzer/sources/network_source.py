@@ -22,7 +22,7 @@ from rtanalyzer.generator.signals import Multitone, Sweep
 from rtanalyzer.generator.sweep import SweepPlan
 from rtanalyzer.sources.bench.knobs import BenchKnobs
 from rtanalyzer.sources.bench.network import path_responses
-from rtanalyzer.sources.drive import tones_of
+from rtanalyzer.sources.drive import drive_at, tones_of
 from rtanalyzer.sources.live import Drive
 from rtanalyzer.sources.paced import PacedSource
 
@@ -116,12 +116,4 @@ class NetworkSource(PacedSource):
         return out
 
     def drive_at(self, frame: int) -> Drive | None:
-        local = frame - self._start_frame
-        if local < 0:
-            return None
-        if self._plan is None:
-            return Drive(tuple(float(f) for f in self._tones))
-        step, freq, settled = self._plan.step_at(local)
-        into_step = self._plan.dwell_frames - self._plan.frames_to_boundary(local)
-        settled_from = frame - into_step + self._plan.settle_frames
-        return Drive((freq,), settled, step, settled_from)
+        return drive_at(self._plan, self._tones, frame, self._start_frame)
