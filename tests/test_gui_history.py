@@ -101,6 +101,7 @@ def test_two_snapshots_at_different_phase_trims_compare_with_overlay_and_better_
     assert view.overlay.series[0][1] != view.overlay.series[1][1]
     assert view.change_text("worst_sideband_suppression_db").startswith("better by")
     assert view.comparison.figure("worst_sideband_suppression_db").verdict == "better"
+    assert not view.band_plot.isVisible() and view.band_note.text() == "no band curve: single-tone snapshots"
     shot = os.environ.get("RTANALYZER_HISTORY_SHOT")
     if shot:
         view.resize(1280, 860)
@@ -109,3 +110,51 @@ def test_two_snapshots_at_different_phase_trims_compare_with_overlay_and_better_
         view.tabs.setCurrentIndex(0)
         qtbot.wait(100)
         view.grab().save(shot.replace(".png", "-trend.png"), "PNG")
+
+
+def _three_tone_sideband(supp, detected, epoch):
+    from rtanalyzer.store.snapshot import Snapshot, iso_utc
+
+    points = [{"tone_hz": tone, "wanted_hz": 14_000_000.0 + tone, "wanted_dbfs": -6.0,
+               "unwanted_hz": 14_000_000.0 - tone, "unwanted_dbfs": -6.0 - s,
+               "unwanted_detected": d, "sideband_suppression_db": s}
+              for tone, s, d in zip((400.0, 1000.0, 2500.0), supp, detected)]
+    worst = min(supp)
+    result = {"measurement": "sideband", "points": points, "worst_sideband_suppression_db": worst,
+              "worst_is_lower_bound": not detected[supp.index(worst)],
+              "carrier_suppression_db": 45.0, "carrier_detected": True}
+    return Snapshot("sideband", result, iso_utc(epoch), epoch)
+
+
+def test_comparing_two_three_tone_sideband_snapshots_overlays_their_band_curves(qtbot, qapp):
+    from PyQt6.QtCore import Qt
+
+    from rtanalyzer.gui.history_view import A_COLOUR, B_COLOUR, HistoryWindow
+    from rtanalyzer.store import SnapshotStore
+
+    before, after = (31.5, 38.2, 27.9), (36.0, 44.5, 40.1)
+    store = SnapshotStore.open(os.environ["RTANALYZER_STORE"])
+    ids = [store.add(_three_tone_sideband(before, (True, True, True), 1_700_000_000.0)),
+           store.add(_three_tone_sideband(after, (True, False, True), 1_700_000_600.0))]
+    view = HistoryWindow(store)
+    qtbot.addWidget(view)
+    view.show()
+    view.refresh()
+    assert not view.band_plot.isVisible()
+    view.select(ids)
+    qtbot.mouseClick(view.compare_button, Qt.MouseButton.LeftButton)
+    assert view.band_plot.isVisible() and "≥" in view.band_note.text()  # B at 1000 Hz is a bound
+    series = view.band_plot.series
+    assert [(s[0], s[1]) for s in series] == [("A #1", A_COLOUR), ("B #2", B_COLOUR)]
+    with _store() as check:
+        for s, snapshot_id in zip(series, ids):
+            stored = check.get(snapshot_id, with_spectrum=False).result["points"]
+            assert list(s[2]) == [p["tone_hz"] for p in stored]
+            assert list(s[3]) == [p["sideband_suppression_db"] for p in stored]
+            assert list(s[5]) == [not p["unwanted_detected"] for p in stored]  # bounds drawn hollow
+    assert list(series[0][3]) == list(before) and list(series[1][3]) == list(after)
+    assert view.band_plot.log_x and view.band_plot.x_title.startswith("opposite-sideband suppression per tone")
+    view.resize(1280, 860)
+    qtbot.wait(100)
+    view.grab().save(os.environ.get("RTANALYZER_BAND_SHOT", "/tmp/gui_history_band.png"), "PNG")
+    store.close()

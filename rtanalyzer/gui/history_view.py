@@ -57,6 +57,32 @@ def figure_text(value: float | None, unit: str, bound: str = "") -> str:
     return "" if value is None else f"{bound}{value:.1f} {unit}"
 
 
+#: Band curves a snapshot can hold: measurement → (x key, y key, what the curve is: the x title's start).
+BAND_CURVES = {
+    "sideband": ("tone_hz", "sideband_suppression_db", "opposite-sideband suppression per tone"),
+    "quadrature": ("frequency_hz", "predicted_suppression_db", "predicted suppression per point"),
+}
+NO_BAND_TEXT = "no band curve: single-tone snapshots"
+BOUND_NOTE = "hollow ○ with ≥: at least that much (the unwanted sideband was under the noise)"
+
+
+def band_curve(result) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """(frequencies, dB values, is-only-a-bound) of a snapshot's per-tone points, by frequency.
+
+    Sideband: opposite-sideband suppression per tone, a lower bound where the unwanted sideband
+    was not detected. Quadrature: predicted suppression per point. Other measurements: empty.
+    """
+    keys = BAND_CURVES.get(result.get("measurement"))
+    rows = []
+    for pt in (result.get("points") or ()) if keys else ():
+        x, y = pt.get(keys[0]), pt.get(keys[1])
+        if x is not None and y is not None:
+            rows.append((float(x), float(y), keys[0] == "tone_hz" and not pt.get("unwanted_detected", True)))
+    rows.sort()
+    return (np.array([r[0] for r in rows], float), np.array([r[1] for r in rows], float),
+            np.array([r[2] for r in rows], bool))
+
+
 # -- saving ---------------------------------------------------------------------------------------
 
 
@@ -196,34 +222,62 @@ def nice_ticks(lo: float, hi: float, count: int = 6) -> list[float]:
     return [first + i * step for i in range(int((hi - first) / step + 1e-9) + 1)]
 
 
+def log_ticks(lo: float, hi: float) -> list[float]:
+    """1-2-5 steps of each decade within [lo, hi] (positive); round linear ones when fewer than two fit."""
+    if not (lo > 0 and hi > lo):
+        return nice_ticks(lo, hi)
+    out = [m * 10.0 ** k for k in range(math.floor(math.log10(lo)), math.ceil(math.log10(hi)) + 1) for m in (1, 2, 5)]
+    out = [v for v in out if lo <= v <= hi]
+    return out if len(out) >= 2 else nice_ticks(lo, hi, 4)
+
+
 class LinePlot(QWidget):
     """Lines (and dots) on a light plot with round-number ticks and a legend, drawn with QPainter.
 
-    ``series`` holds (label, colour, xs, ys, dots) and is what tests read back.
+    ``series`` holds (label, colour, xs, ys, dots, bound) and is what tests read back; ``bound``
+    marks the points that are only bounds (drawn hollow, with a "≥" note). ``log_x`` puts the x
+    axis on a log scale (positive xs only).
     """
 
-    def __init__(self, x_title: str = "", y_title: str = "", parent=None) -> None:
+    def __init__(self, x_title: str = "", y_title: str = "", parent=None, log_x: bool = False) -> None:
         super().__init__(parent)
         self.x_title, self.y_title = x_title, y_title
-        self.series: list[tuple[str, str, np.ndarray, np.ndarray, bool]] = []
+        self.series: list[tuple[str, str, np.ndarray, np.ndarray, bool, np.ndarray]] = []
+        self.log_x = log_x
         self.x_format: Callable[[float], str] = lambda v: f"{v:g}"
-        self.x_ticks: Callable[[float, float], list[float]] = nice_ticks
+        self.x_ticks: Callable[[float, float], list[float]] = log_ticks if log_x else nice_ticks
         self.empty_text = "nothing to show"
+        self.bound_text = "≥ at least (under the noise)"
+        self.headroom = 0.08  # of the y span, above the data (more keeps the legend off it)
         self.x_span = (0.0, 1.0)
         self.setMinimumHeight(220)
 
     def set_series(self, series, x_title: str | None = None, y_title: str | None = None) -> None:
-        self.series = [(label, colour, np.asarray(xs, float), np.asarray(ys, float), dots)
-                       for label, colour, xs, ys, dots in series]
+        """``series``: (label, colour, xs, ys, dots) or (label, colour, xs, ys, dots, bound)."""
+        self.series = []
+        for label, colour, xs, ys, dots, *bound in series:
+            xs, ys = np.asarray(xs, float), np.asarray(ys, float)
+            mask = np.asarray(bound[0], bool) if bound else np.zeros(ys.shape, bool)
+            self.series.append((label, colour, xs, ys, dots, mask))
         if x_title is not None:
             self.x_title = x_title
         if y_title is not None:
             self.y_title = y_title
         self.update()
 
+    def _tx(self, xs):
+        """x in plot units: log10 of it on a log axis."""
+        return np.log10(xs) if self.log_x else xs
+
+    def _shown(self, xs: np.ndarray, ys: np.ndarray) -> np.ndarray:
+        ok = np.isfinite(ys) & np.isfinite(xs)
+        return ok & (xs > 0) if self.log_x else ok
+
     def _bounds(self) -> tuple[float, float, float, float] | None:
-        xs = [s[2][np.isfinite(s[3])] for s in self.series]
-        ys = [s[3][np.isfinite(s[3])] for s in self.series]
+        """x0, x1 (plot units), y0, y1 of what is drawn."""
+        oks = [self._shown(s[2], s[3]) for s in self.series]
+        xs = [self._tx(s[2][ok]) for s, ok in zip(self.series, oks)]
+        ys = [s[3][ok] for s, ok in zip(self.series, oks)]
         xs, ys = [x for x in xs if x.size], [y for y in ys if y.size]
         if not xs:
             return None
@@ -235,7 +289,7 @@ class LinePlot(QWidget):
             margin = (x1 - x0) * 0.04
             x0, x1 = x0 - margin, x1 + margin
         pad = max((y1 - y0) * 0.08, 1.0)
-        return x0, x1, y0 - pad, y1 + pad
+        return x0, x1, y0 - pad, y1 + max((y1 - y0) * self.headroom, 1.0)
 
     def paintEvent(self, event) -> None:  # noqa: N802 - Qt
         p = QPainter(self)
@@ -255,9 +309,10 @@ class LinePlot(QWidget):
             p.end()
             return
         x0, x1, y0, y1 = bounds
-        self.x_span = (x0, x1)
+        self.x_span = (10.0 ** x0, 10.0 ** x1) if self.log_x else (x0, x1)
 
         def px(x, y):
+            x = self._tx(x)
             return (area.left() + (x - x0) / (x1 - x0) * area.width(),
                     area.bottom() - (y - y0) / (y1 - y0) * area.height())
 
@@ -268,7 +323,7 @@ class LinePlot(QWidget):
             p.drawLine(QPointF(area.left(), y), QPointF(area.right(), y))
             p.setPen(ink)
             p.drawText(QRectF(0, y - 9, left - 6, 18), Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter, f"{v:g}")
-        for v in self.x_ticks(x0, x1):
+        for v in self.x_ticks(*self.x_span):
             x, _ = px(v, y0)
             p.setPen(grid)
             p.drawLine(QPointF(x, area.top()), QPointF(x, area.bottom()))
@@ -284,17 +339,24 @@ class LinePlot(QWidget):
         p.drawText(QRectF(-area.height() / 2, -8, area.height(), 18), Qt.AlignmentFlag.AlignHCenter, self.y_title)
         p.restore()
         p.setClipRect(area)
-        for label, colour, xs, ys, dots in self.series:
+        any_bound = False
+        for label, colour, xs, ys, dots, bound in self.series:
             pen = QPen(QColor(colour))
             pen.setWidthF(1.6)
             p.setPen(pen)
-            ok = np.isfinite(ys)
+            ok = self._shown(xs, ys)
             points = [QPointF(*px(x, y)) for x, y in zip(xs[ok], ys[ok])]
             if len(points) > 1:
                 p.drawPolyline(QPolygonF(points))
-            if dots:
-                p.setBrush(QColor(colour))
-                for q in points:
+            for q, is_bound in zip(points, bound[ok]):
+                if is_bound:  # only a bound: hollow, with "≥" above
+                    any_bound = True
+                    p.setBrush(QColor(style.PLOT))
+                    p.drawEllipse(q, 4.5, 4.5)
+                    p.drawText(QRectF(q.x() + 7, q.y() - metrics.height() - 2, 20, metrics.height()),
+                               Qt.AlignmentFlag.AlignLeft, "≥")
+                elif dots:
+                    p.setBrush(QColor(colour))
                     p.drawEllipse(q, 3.5, 3.5)
                 p.setBrush(Qt.BrushStyle.NoBrush)
         p.setClipping(False)
@@ -313,6 +375,13 @@ class LinePlot(QWidget):
             p.setPen(ink)
             p.drawText(QPointF(x + 26, y + metrics.ascent()), label)
             y += metrics.height() + 6
+        if any_bound and self.bound_text:  # the hollow marker's meaning, as a last legend row
+            w = metrics.horizontalAdvance(self.bound_text)
+            x = area.right() - w - 34
+            p.fillRect(QRectF(x - 6, y - 2, w + 36, metrics.height() + 4), QColor(style.PANEL))
+            p.setPen(ink)
+            p.drawEllipse(QPointF(x + 10, y + metrics.height() / 2), 4.5, 4.5)
+            p.drawText(QPointF(x + 26, y + metrics.ascent()), self.bound_text)
         p.end()
 
 
@@ -431,9 +500,24 @@ class HistoryWindow(QWidget):
         row.addWidget(self.compare_status, 1)
         compare_layout.addLayout(row)
         split = QSplitter(Qt.Orientation.Horizontal)
+        plots = QWidget()
+        plots_layout = QVBoxLayout(plots)
+        plots_layout.setContentsMargins(0, 0, 0, 0)
         self.overlay = LinePlot("frequency, Hz", "level, dBFS")
         self.overlay.empty_text = "select two snapshots and compare"
-        split.addWidget(self.overlay)
+        plots_layout.addWidget(self.overlay, 3)
+        # the per-tone band curves, when a snapshot has several points (same painting as above)
+        self.band_plot = LinePlot("frequency, Hz (log)", "suppression, dB", log_x=True)
+        self.band_plot.setMinimumHeight(210)
+        self.band_plot.headroom = 0.8  # the legend above the curves
+        self.band_plot.bound_text = ""  # said by band_note, under the plot
+        self.band_plot.hide()
+        plots_layout.addWidget(self.band_plot, 2)
+        self.band_note = QLabel(NO_BAND_TEXT)
+        self.band_note.setStyleSheet(f"color: {style.INK_SOFT};")
+        self.band_note.hide()
+        plots_layout.addWidget(self.band_note)
+        split.addWidget(plots)
         self.changes = QTableWidget(0, 4)
         self.changes.setHorizontalHeaderLabels(["figure", "A", "B", "change"])
         self.changes.verticalHeader().hide()
@@ -559,7 +643,9 @@ class HistoryWindow(QWidget):
             except StoreError:
                 continue
             series.append((f"{side} {snap.label}", colour, f, levels, False))
+        self.overlay.empty_text = "no spectrum stored with these snapshots"
         self.overlay.set_series(series)
+        self.draw_band(a, b)
         self.changes.setRowCount(len(result.figures))
         for i, fc in enumerate(result.figures):
             cells = (fc.label, fc.a.text(fc.unit) if fc.a else "—", fc.b.text(fc.unit) if fc.b else "—", fc.text)
@@ -572,6 +658,21 @@ class HistoryWindow(QWidget):
         flags = "; ".join(result.flags)
         self.compare_status.setText(f"A {a.label} → B {b.label}" + (f" · doubtful: {flags}" if flags else ""))
         self.tabs.setCurrentIndex(1)
+
+    def draw_band(self, a, b) -> None:
+        """Overlay the two snapshots' band curves, shown when either has two points or more."""
+        curves = [(side, snap, colour, band_curve(snap.result))
+                  for side, snap, colour in (("A", a, A_COLOUR), ("B", b, B_COLOUR))]
+        shown = any(len(curve[0]) >= 2 for *_, curve in curves)
+        x_title = BAND_CURVES.get(a.measurement, (None, None, "band curve"))[2] + " · frequency, Hz (log)"
+        y_title = "suppression, dB"
+        self.band_plot.set_series(
+            [(f"{side} {snap.label}", colour, xs, ys, True, bound)
+             for side, snap, colour, (xs, ys, bound) in curves if len(xs)] if shown else [], x_title, y_title)
+        self.band_plot.setVisible(shown)
+        bounds = shown and any(s[5].any() for s in self.band_plot.series)
+        self.band_note.setText(BOUND_NOTE if bounds else "" if shown else NO_BAND_TEXT)
+        self.band_note.setVisible(bounds or not shown)
 
     def change_text(self, key: str) -> str:
         """The change column's text for a figure of the shown comparison (tests and tooltips)."""
