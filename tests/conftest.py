@@ -110,3 +110,31 @@ def file_digest(path: Path) -> str | None:
         return hashlib.sha256(Path(path).read_bytes()).hexdigest()
     except FileNotFoundError:
         return None
+
+
+@pytest.fixture(autouse=True)
+def _qt_objects_die_on_the_gui_thread(request):
+    """In window tests, collect garbage only on the GUI thread, between tests.
+
+    Python's cyclic collector runs in whichever thread happens to allocate; a window left in a
+    reference cycle by one test could then be destroyed from the analysis thread of the next,
+    and Qt objects must die on the thread that owns them (Qt documentation, thread affinity).
+    """
+    if "qtbot" not in request.fixturenames and "qapp" not in request.fixturenames:
+        yield
+        return
+    import gc
+
+    gc.disable()
+    try:
+        yield
+    finally:
+        from PyQt6.QtWidgets import QApplication
+
+        app = QApplication.instance()
+        if app is not None:
+            app.processEvents()
+        gc.collect()
+        if app is not None:
+            app.processEvents()
+        gc.enable()
