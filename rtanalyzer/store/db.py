@@ -383,16 +383,8 @@ class SnapshotStore:
         with_spectra : bool
             Load the stored spectra too (slower for long lists).
         """
-        where, params = self._where(rig, tags, since, until, measurement, ids)
-        order = "DESC" if newest_first else "ASC"
         columns = ", ".join(f"s.{c}" for c in _SNAPSHOT_COLUMNS)
-        sql = (
-            f"SELECT {columns}, (SELECT group_concat(tag, '{_TAG_SEPARATOR}') FROM tags t WHERE t.snapshot_id = s.id)"
-            f" FROM snapshots s {where} ORDER BY s.created_epoch {order}, s.id {order}"
-        )
-        if limit is not None:
-            sql += " LIMIT ?"
-            params.append(int(limit))
+        sql, params = self._select(columns, (rig, tags, since, until, measurement, ids), limit, newest_first)
         with self._guard():
             rows = self._conn.execute(sql, params).fetchall()
             snapshots = [_from_row(r) for r in rows]
@@ -400,6 +392,19 @@ class SnapshotStore:
                 spectra = self._spectra([s.id for s in snapshots])
                 snapshots = [s.with_changes(spectrum=spectra.get(s.id)) if s.id in spectra else s for s in snapshots]
         return snapshots
+
+    def _select(self, columns: str, filters: tuple, limit: int | None, newest_first: bool) -> tuple[str, list]:
+        """SELECT ``columns`` and the tag list of the snapshots the filters keep, in time order."""
+        where, params = self._where(*filters)
+        order = "DESC" if newest_first else "ASC"
+        sql = (
+            f"SELECT {columns}, (SELECT group_concat(tag, '{_TAG_SEPARATOR}') FROM tags t WHERE t.snapshot_id = s.id)"
+            f" FROM snapshots s {where} ORDER BY s.created_epoch {order}, s.id {order}"
+        )
+        if limit is not None:
+            sql += " LIMIT ?"
+            params.append(int(limit))
+        return sql, params
 
     def summaries(
         self,
@@ -416,17 +421,11 @@ class SnapshotStore:
 
         Much faster than :meth:`list` for long histories: no measurement JSON is read.
         """
-        where, params = self._where(rig, tags, since, until, measurement, ids)
-        order = "DESC" if newest_first else "ASC"
-        sql = (
-            "SELECT s.id, s.created_utc, s.created_epoch, s.rig, s.measurement, s.origin, s.source, s.device, s.note, "
-            f"s.bound_flags, {', '.join('s.' + c for c in _KEY_COLUMNS)}, "
-            f"(SELECT group_concat(tag, '{_TAG_SEPARATOR}') FROM tags t WHERE t.snapshot_id = s.id)"
-            f" FROM snapshots s {where} ORDER BY s.created_epoch {order}, s.id {order}"
+        columns = (
+            "s.id, s.created_utc, s.created_epoch, s.rig, s.measurement, s.origin, s.source, s.device, s.note, "
+            f"s.bound_flags, {', '.join('s.' + c for c in _KEY_COLUMNS)}"
         )
-        if limit is not None:
-            sql += " LIMIT ?"
-            params.append(int(limit))
+        sql, params = self._select(columns, (rig, tags, since, until, measurement, ids), limit, newest_first)
         out = []
         with self._guard():
             for r in self._conn.execute(sql, params):
