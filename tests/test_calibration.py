@@ -160,6 +160,10 @@ def test_passband_correction_makes_sideband_pairs_compare_fairly(tmp_path, capsy
     assert fixed["calibration"] == ["rx"]
     assert fixed["points"][0]["sideband_suppression_db"] == pytest.approx(40.0, abs=0.1)
     assert fixed["worst_sideband_suppression_db"] == pytest.approx(40.0, abs=0.1)
+    # The 1000 Hz tone lies in the default 300-3000 Hz band: its in-band worst follows the correction.
+    assert raw["worst_in_band"]["sideband_suppression_db"] == pytest.approx(40.0 + tilt, abs=0.1)
+    assert fixed["worst_in_band"] == {"tone_hz": 1000.0, "is_lower_bound": False,
+                                      "sideband_suppression_db": fixed["points"][0]["sideband_suppression_db"]}
 
 
 def test_level_calibration_adds_volts(tmp_path, capsys):
@@ -195,3 +199,87 @@ def test_channels_profile_applies_to_iq_sideband(tmp_path, capsys):
     r = json.loads(out)
     assert r["calibration"] == ["card"]
     assert r["points"][0]["sideband_suppression_db"] == pytest.approx(40.0, abs=0.1)
+
+
+def tilt_db(f):
+    """A receiver tilting 12 dB per decade, linear in log f so the profile interpolates it exactly."""
+    return 12.0 * np.log10(np.asarray(f, dtype=float) / 1000.0)
+
+
+def test_passband_correction_brings_twotone_figures_to_the_untilted_truth(tmp_path, capsys):
+    from conftest import amplitude, sigma_for_bin_level
+    from rtanalyzer.measurements.calibration import make_passband_profile
+
+    t = np.arange(2 * RATE) / RATE
+    noise = sigma_for_bin_level(-150.0, 65536)  # far under the products: sub-0.05 dB reading error
+    rng = np.random.default_rng(7)
+    # Profile: a flat multitone through the tilted receiver.
+    flat = sum(0.03 * amplitude(tilt_db(f)) * np.cos(2 * np.pi * f * t + 0.6 * k * k)
+               for k, f in enumerate(range(500, 4001, 250)))
+    profile = make_passband_profile(Signal(flat, float(RATE)), "rx", tuple(range(500, 4001, 250)))
+    write_profile(profile)
+    # Truth: tones 2000 Hz at -10 dBFS and 2300 Hz at -10.5 dBFS (the low one is the stronger); the tilt
+    # makes the high one read stronger, so the dBc reference must switch back after correction.
+    truth_tones = {2000.0: -10.0, 2300.0: -10.5}
+    # dBc re the stronger true tone (-10 dBFS); the IMD9 upper product (3500 Hz) is not injected: a bound.
+    truth_dbc = {1700.0: -30.0, 2600.0: -32.0, 1400.0: -45.0, 2900.0: -47.0, 1100.0: -60.0, 3200.0: -62.0,
+                 800.0: -75.0}
+    comps = [(f, level) for f, level in truth_tones.items()] + [(f, -10.0 + d) for f, d in truth_dbc.items()]
+    x = sum(amplitude(level + tilt_db(f)) * np.cos(2 * np.pi * f * t + 0.3 * k) for k, (f, level) in enumerate(comps))
+    wav = write_wav(tmp_path / "tt.wav", x + noise * rng.standard_normal(t.size))
+    argv = ["analyze", "twotone", wav, "--tones", 2000, 2300, "--json"]
+    code, out, err = cli(argv, capsys)
+    assert (code, err) == (0, ""), err
+    raw = json.loads(out)
+    code, out, err = cli(argv + ["--calibration", "rx"], capsys)
+    assert (code, err) == (0, ""), err
+    fixed = json.loads(out)
+    assert fixed["calibration"] == ["rx"] and not any("passband" in w for w in fixed["warnings"])
+    # PEP of two tones = 20*log10(A1 + A2) of their peak amplitudes (measurement-conventions.md, "Two-tone test").
+    pep_truth = 20 * np.log10(amplitude(-10.0) + amplitude(-10.5))
+    assert fixed["pep_dbfs"] - max(fixed["tone_dbfs"]) == pytest.approx(pep_truth + 10.0, abs=0.05)
+    assert fixed["tone_dbfs"][0] - fixed["tone_dbfs"][1] == pytest.approx(0.5, abs=0.05)
+    moved = 0.0
+    for o_raw, o in zip(raw["imd"], fixed["imd"]):
+        for side in ("lower", "upper"):
+            f = o[f"{side}_hz"]
+            if o[f"{side}_detected"]:
+                d = truth_dbc[round(f)]
+                # dBc = product - stronger tone; dB PEP = product - PEP (measurement-conventions.md).
+                assert o[f"{side}_dbc"] == pytest.approx(d, abs=0.05), (o["order"], side)
+                assert o[f"{side}_db_pep"] == pytest.approx(-10.0 + d - pep_truth, abs=0.05), (o["order"], side)
+                moved = max(moved, abs(o_raw[f"{side}_dbc"] - d))
+            # What the correction did to the dBc is kept beside it.
+            assert o[f"{side}_passband_correction_db"] == pytest.approx(o[f"{side}_dbc"] - o_raw[f"{side}_dbc"],
+                                                                        abs=0.002)
+    assert moved > 2.0  # uncorrected, the tilt is plainly in the figures
+    # The IMD9 upper product stays a bound, moved by the receiver's gain there and the reference's.
+    o9_raw, o9 = raw["imd"][-1], fixed["imd"][-1]
+    assert o9["upper_detected"] is False and o9["upper_dbfs"] is None
+    # Its corrected level over the corrected low tone (the stronger); the profile's mean offset cancels.
+    bound_raw = o9_raw["upper_dbc"] + max(raw["tone_dbfs"])
+    expected = bound_raw - float(tilt_db(3500.0)) - (raw["tone_dbfs"][0] - float(tilt_db(2000.0)))
+    assert o9["upper_dbc"] == pytest.approx(expected, abs=0.05)
+    # Worst IMD: truth says IMD3 lower (-30 dBc) beats upper (-32); the tilt had it the other way.
+    assert fixed["worst_imd_order"] == 3 and fixed["worst_imd_is_bound"] is False
+    assert fixed["worst_imd_db_pep"] == pytest.approx(-40.0 - pep_truth, abs=0.05)
+    assert fixed["imd"][0]["worst_db_pep"] == pytest.approx(fixed["imd"][0]["lower_db_pep"], abs=1e-9)
+    assert raw["imd"][0]["worst_db_pep"] == pytest.approx(raw["imd"][0]["upper_db_pep"], abs=1e-9)
+
+
+def test_passband_points_outside_the_profile_warn_and_other_measurements_refuse():
+    profile = Profile("passband", "narrow", 48000.0, points=((1000.0, -1.0), (3000.0, 1.0)))
+    figures = {"measurement": "twotone", "tone_hz": [2000.0, 2300.0], "tone_dbfs": [-10.0, -10.0], "pep_dbfs": -3.98,
+               "imd": [{"order": 3, "lower_hz": 800.0, "lower_dbfs": -50.0, "lower_dbc": -40.0, "lower_db_pep": -46.02,
+                        "lower_detected": True, "upper_hz": None, "upper_dbfs": None, "upper_dbc": None,
+                        "upper_db_pep": None, "upper_detected": False, "worst_db_pep": -46.02,
+                        "worst_is_bound": False}],
+               "warnings": []}
+    signal = Signal(np.zeros(8), 48000.0)
+    out = CalibrationSet((profile,)).finish(figures, signal)
+    # Outside the points the nearest end's gain (-1 dB at 1000 Hz) is held, and a warning says so.
+    assert out["imd"][0]["lower_dbfs"] == pytest.approx(-49.0, abs=1e-9)
+    assert out["imd"][0]["upper_passband_correction_db"] is None  # a product not measured stays null
+    assert any("'narrow'" in w and "800" in w for w in out["warnings"])
+    with pytest.raises(MeasurementError, match="not to quadrature"):
+        CalibrationSet((profile,)).finish({"measurement": "quadrature", "warnings": []}, signal)

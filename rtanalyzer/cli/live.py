@@ -59,8 +59,11 @@ def add_parser(subparsers) -> None:
     view = plan.add_mutually_exclusive_group()
     view.add_argument("--channel", type=int, metavar="N", help="channel to analyse, 1 = left")
     view.add_argument("--iq", action="store_const", const=True, default=None, help="stereo I/Q input")
-    p.add_argument("--measure", choices=("sideband", "twotone"), default=None,
-                   help="figure to show (default: twotone for a two-tone signal, else sideband)")
+    p.add_argument("--measure", choices=_measurements(), default=None,
+                   help="figure to show (default: twotone for a two-tone signal, else sideband; quadrature reads "
+                   "a 90° network's outputs, left = I, right = Q)")
+    p.add_argument("--calibration", action="extend", nargs="+", metavar="NAME", default=None,
+                   help="calibration profile(s) taken out of every readout (calibration/NAME.cal, or a path)")
     p.add_argument("--update-hz", type=float, default=20.0, help="readouts per second (default 20)")
     p.add_argument("--average", type=int, default=1, help="spectra averaged per readout (default 1)")
     p.add_argument("--resolution", type=float, default=None, metavar="HZ",
@@ -71,6 +74,12 @@ def add_parser(subparsers) -> None:
     add_save_options(p, live=True)
     # The safety cautions come once per user: printed by the terminal readout, shown by the window.
     p.set_defaults(shows_cautions=False, func=run)
+
+
+def _measurements() -> tuple[str, ...]:
+    from rtanalyzer.measurements.registry import available
+
+    return tuple(available())
 
 
 def _signal(args: argparse.Namespace, default_kind: str | None):
@@ -108,7 +117,7 @@ def config_from_args(args: argparse.Namespace):
         input_channels=args.input_channels, file=args.file, loop=args.loop,
         tones_hz=tuple(args.tone or args.tones or ()), carrier_hz=args.carrier, wanted=args.wanted,
         channel=args.channel, iq=bool(args.iq), measurement=measure, update_hz=args.update_hz,
-        averages=args.average, resolution_hz=args.resolution,
+        averages=args.average, resolution_hz=args.resolution, calibration=tuple(args.calibration or ()),
     )
     return config, notice
 
@@ -139,6 +148,8 @@ def explicit_options(args: argparse.Namespace) -> frozenset[str]:
         given.add("measurement")
     if args.average != 1:
         given.add("averages")
+    if args.calibration:
+        given.add("calibration")
     given.update(f"knobs.{name}" for name in knob_changes(args))
     return frozenset(given)
 

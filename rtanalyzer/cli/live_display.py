@@ -23,12 +23,34 @@ def figure_lines(measure: str, r: dict) -> list[str]:
             text = "out of range" if worst is None else _db(worst, "dB PEP", "below " if o["worst_is_bound"] else "")
             lines.append(f"IMD{o['order']}         {text}")
         return lines
+    if measure == "quadrature":
+        return _quadrature_lines(r)
     worst = r["worst_sideband_suppression_db"]
     lines = [
         "opposite sideband  " + _db(worst, "dB", "at least " if r["worst_is_lower_bound"] else "")
         + (f"   (worst of {len(r['points'])} tones)" if len(r["points"]) > 1 else ""),
         "carrier            " + _db(r["carrier_suppression_db"], "dBc", "" if r["carrier_detected"] else "at least "),
     ]
+    return lines
+
+
+def _quadrature_lines(r: dict) -> list[str]:
+    """The 90° network: the strongest tone's phase in degrees and µs side by side, then the band."""
+    points = r.get("points") or []
+    if not points:
+        return ["no tone above the noise on both inputs"]
+    top = max(points, key=lambda p: p["left_dbfs"] + p["right_dbfs"])
+    f = top["frequency_hz"]
+    err_us = top["phase_error_deg"] / (360.0 * f) * 1e6
+    lines = [
+        f"phase I-Q    {top['phase_difference_deg']:.2f} deg = {top['time_offset_us']:.1f} us at {f:.1f} Hz"
+        f"   error {top['phase_error_deg']:+.2f} deg ({err_us:+.2f} us)",
+        f"ratio Q/I    {top['amplitude_ratio_db']:+.3f} dB   predicted suppression {top['predicted_suppression_db']:.1f} dB",
+    ]
+    band = r.get("band") or {}
+    if len(points) > 1 and band.get("worst_predicted_suppression_db") is not None:
+        lines.append(f"band {band['low_hz']:g}-{band['high_hz']:g} Hz  worst {band['worst_predicted_suppression_db']:.1f} dB "
+                     f"at {band['worst_frequency_hz']:.0f} Hz ({band['points']} tones)")
     return lines
 
 
@@ -43,10 +65,10 @@ class TerminalDisplay:
 
     def lines(self, readout: Readout) -> list[str]:
         head = f"rtanalyzer live · {self.source} · {self.measure} · {readout.state}"
-        body = figure_lines(self.measure, readout.result) if readout.result else [f"({readout.error})"]
+        body = self._figures(readout)
         if readout.best and readout.best.get("best") is not None:
             b = readout.best
-            unit = "dB" if self.measure == "sideband" else "dB PEP"
+            unit = "dB PEP" if self.measure == "twotone" else "dB"
             body.append(f"best so far        {b['best']:.1f} {unit}   last change: {ARROWS[b['trend']]}")
         lv = readout.levels
         meters = "  ".join(
@@ -59,6 +81,9 @@ class TerminalDisplay:
         if readout.result and readout.result.get("warnings"):
             body += [f"warning: {w}" for w in readout.result["warnings"][:2]]
         return [head, *body]
+
+    def _figures(self, readout: Readout) -> list[str]:
+        return figure_lines(self.measure, readout.result) if readout.result else [f"({readout.error})"]
 
     def show(self, readout: Readout) -> None:
         lines = self.lines(readout)
@@ -74,7 +99,8 @@ class TerminalDisplay:
             if second == self._last_plain:
                 return
             self._last_plain = second
-            self.stream.write(" | ".join(lines[1:3]) + "\n")
+            levels = next(line for line in lines if line.startswith("levels"))
+            self.stream.write(" | ".join([*self._figures(readout), levels]) + "\n")
         self.stream.flush()
 
     def close(self) -> None:

@@ -54,6 +54,13 @@ def sideband(r: dict[str, Any]) -> list[str]:
     if worst is not None and len(r["points"]) > 1:
         prefix = "at least " if r["worst_is_lower_bound"] else ""
         lines.append(f"worst opposite-sideband suppression: {prefix}{worst:.1f} dB")
+    in_band = r.get("worst_in_band")  # absent from results saved before the band existed
+    if in_band is not None:
+        lo, hi = r["band_hz"]
+        figure = in_band["sideband_suppression_db"]
+        figure_text = (f"at least {figure:.1f} dB at {in_band['tone_hz']:g} Hz (unwanted not detected)"
+                       if in_band["is_lower_bound"] else f"{figure:.1f} dB at {in_band['tone_hz']:g} Hz")
+        lines.append(f"worst in {lo:g}–{hi:g} Hz: {figure_text}")
     lines.append(f"wanted sideband {r['wanted_side']} the carrier" + (
         f"; receiver tuned {r['tuning_offset_hz']:+.1f} Hz off" if r.get("tuning_offset_hz") is not None else ""
     ))

@@ -69,6 +69,7 @@ class WindowSettings:
         self.put("plan/tones_hz", list(config.tones_hz))
         self.put("measurement/kind", config.measurement)
         self.put("measurement/averages", config.averages)
+        self.put("calibration/profiles", list(config.calibration))
         self.put("generator/choice", generator.as_dict())
         self.put("bench/knobs", config.knobs.as_dict())
 
@@ -77,7 +78,8 @@ class WindowSettings:
         """``config`` and ``generator`` with the saved values put back, except those named in ``explicit``.
 
         ``explicit`` holds "source", "devices", "rate", "file", "signal", "plan.carrier",
-        "plan.wanted", "plan.view", "plan.tones", "measurement", "averages" and "knobs.NAME".
+        "plan.wanted", "plan.view", "plan.tones", "measurement", "averages", "calibration" and
+        "knobs.NAME". A saved calibration profile that no longer exists is left out.
         """
         if not self.has_session:
             return config, generator
@@ -101,8 +103,12 @@ class WindowSettings:
         take("plan.view", "iq", "plan/iq", lambda v: isinstance(v, bool))
         take("plan.view", "channel", "plan/channel", lambda v: v is None or (isinstance(v, int) and 1 <= v <= 2))
         take("plan.tones", "tones_hz", "plan/tones_hz", lambda v: isinstance(v, list))
-        take("measurement", "measurement", "measurement/kind", lambda v: v in (None, "sideband", "twotone"))
+        take("measurement", "measurement", "measurement/kind", lambda v: v is None or v in measurement_names())
         take("averages", "averages", "measurement/averages", lambda v: isinstance(v, int) and 1 <= v <= 64)
+        take("calibration", "calibration", "calibration/profiles",
+             lambda v: isinstance(v, list) and all(isinstance(n, str) for n in v))
+        if "calibration" in changes:
+            changes["calibration"] = tuple(n for n in changes["calibration"] if _profile_exists(n))
         if "tones_hz" in changes:
             changes["tones_hz"] = tuple(float(t) for t in changes["tones_hz"])
         saved_knobs = self.get("bench/knobs", {})
@@ -149,6 +155,23 @@ class WindowSettings:
 
     def sync(self) -> None:
         self.q.sync()
+
+
+def measurement_names() -> tuple[str, ...]:
+    from rtanalyzer.measurements.registry import available
+
+    return tuple(available())
+
+
+def _profile_exists(name: str) -> bool:
+    from rtanalyzer.errors import RtaError
+    from rtanalyzer.measurements.calibration import find_profile
+
+    try:
+        find_profile(name)
+    except RtaError:
+        return False
+    return True
 
 
 def knobs_of(values: dict[str, float], base: BenchKnobs) -> BenchKnobs:

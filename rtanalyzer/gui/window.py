@@ -37,6 +37,7 @@ from rtanalyzer.cli.cautions import config_dir
 from rtanalyzer.errors import RtaError
 from rtanalyzer.gui import style
 from rtanalyzer.gui.band_view import attach as attach_band_view
+from rtanalyzer.gui.calibration_menu import attach as attach_calibration_menu
 from rtanalyzer.gui.choices import GeneratorChoice
 from rtanalyzer.gui.controls import ControlsPanel
 from rtanalyzer.gui.dialogs import cautions_dialog, shortcuts_dialog, truth_text, TextDialog
@@ -55,6 +56,7 @@ STATUS_MS = 500
 FIGURES = {
     "sideband": ("sideband suppression", "dB"),
     "twotone": ("worst IMD", "dB PEP"),
+    "quadrature": ("suppression the network allows", "dB"),
 }
 
 
@@ -140,6 +142,7 @@ class MainWindow(QMainWindow):
         self.status_timer.start()
         self.cautions = None
         attach_band_view(self)  # View ▸ Network band…, and the sweep progress
+        attach_calibration_menu(self)  # Calibration ▸ profiles in force
         self.runner.start(self._effective(config))
 
     # -- building -------------------------------------------------------------------------------------
@@ -620,13 +623,12 @@ class MainWindow(QMainWindow):
         detail = ""
         if points and worst is not None:
             p = min(points, key=lambda q: q.get("sideband_suppression_db") or math.inf)
+            # Short enough for two lines of the tile: the wanted level is labelled on the spectrum.
+            where = f"worst of {len(points)} at {p['tone_hz']:g} Hz" if len(points) > 1 else f"at {p['tone_hz']:g} Hz"
             if p.get("unwanted_detected"):
-                detail = (f"{p['tone_hz']:g} Hz tone: unwanted {signed(p['unwanted_dbfs'])}, "
-                          f"wanted {signed(p['wanted_dbfs'])} dBFS")
+                detail = f"{where} · unwanted {signed(p['unwanted_dbfs'])} dBFS"
             else:
-                detail = f"{p['tone_hz']:g} Hz tone: unwanted under the noise"
-            if len(points) > 1:
-                detail = f"worst of {len(points)}: " + detail
+                detail = f"{where} · unwanted under the noise"
         self.tiles["sideband"].set_figure(t, worst, "≥" if r.get("worst_is_lower_bound") else "",
                                           detail or "no wanted tone found")
         carrier = r.get("carrier_suppression_db")

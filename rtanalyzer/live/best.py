@@ -8,6 +8,7 @@ from dataclasses import dataclass
 FIGURES = {
     "sideband": ("worst_sideband_suppression_db", True, "opposite-sideband suppression"),
     "twotone": ("worst_imd_db_pep", False, "worst IMD"),
+    "quadrature": ("worst_predicted_suppression_db", True, "suppression the 90° network allows"),
 }
 # Changes smaller than this are shown as steady (readout noise, not a trim).
 STEADY_DB = 0.05

@@ -23,6 +23,7 @@ from rtanalyzer.errors import RtaError
 from rtanalyzer.live.best import BestTracker
 from rtanalyzer.live.meters import Meters
 from rtanalyzer.measurements.base import Measurement
+from rtanalyzer.measurements.calibration import CalibrationSet
 from rtanalyzer.sources.capture import Signal
 from rtanalyzer.sources.live import LiveSource
 
@@ -94,6 +95,9 @@ class LiveEngine:
         Analysis window; default from :func:`live_nfft`.
     averages : int
         Spectra averaged per readout (1: none, fastest response).
+    calibration : CalibrationSet, optional
+        Profiles taken out of every readout (checked against the measurement beforehand, see
+        :func:`rtanalyzer.live.session.build_engine`); the result names them under "calibration".
     """
 
     def __init__(
@@ -107,6 +111,7 @@ class LiveEngine:
         nfft: int | None = None,
         averages: int = 1,
         on_readout: Callable[[Readout], None] | None = None,
+        calibration: CalibrationSet | None = None,
     ) -> None:
         if not 0.5 <= update_hz <= 100:
             raise RtaError(f"update rate {update_hz:g} readouts/s is outside 0.5-100")
@@ -127,6 +132,7 @@ class LiveEngine:
         self.best = BestTracker.for_measurement(measurement.name)
         self.readouts: queue.Queue[Readout] = queue.Queue(QUEUE_LENGTH)
         self.on_readout = on_readout
+        self.calibration = calibration or CalibrationSet()
         self._takes_spectrum = "spectrum" in inspect.signature(measurement.measure).parameters
         self._read_to = 0
         self._last_window_end = None
@@ -242,7 +248,7 @@ class LiveEngine:
             self._last_step = sweep["step"]
         if not usable:
             return Readout(self.measurement.name, time.monotonic(), end, None, "settling", self.meters.as_dict(), xruns, state, sweep=sweep)
-        signal = self._signal(window)
+        signal = self.calibration.prepare(self._signal(window))
         hop = end - self._last_window_end if self._last_window_end is not None else None
         self._last_window_end = end
         spectrum = self.spectrum.push(signal.samples, hop)
@@ -250,8 +256,7 @@ class LiveEngine:
         result, error = None, None
         try:
             kwargs = {"spectrum": spectrum} if self._takes_spectrum else {}
-            result = self.measurement.measure(signal, settings, **kwargs).to_json()
-            result.setdefault("calibration", [])  # every result names its calibration; live applies none
+            result = self.calibration.finish(self.measurement.measure(signal, settings, **kwargs).to_json(), signal)
         except RtaError as exc:
             error = str(exc)
         if result is not None and self.best is not None:

@@ -42,6 +42,7 @@ class SessionConfig:
     update_hz: float = 20.0
     averages: int = 1
     resolution_hz: float | None = None
+    calibration: tuple[str, ...] = ()  # calibration profile names (rtanalyzer.measurements.calibration)
 
     def __post_init__(self) -> None:
         # Named by their command-line options, the front end most people type into.
@@ -180,9 +181,22 @@ def build_engine(config: SessionConfig) -> LiveEngine:
     if config.source == "file" and not config.file:
         raise RtaError("--source file needs --file F")
     settings = plan_settings(config, name)
-    source = build_source(config)
-    nfft = live_nfft(source.rate_hz, config.resolution_hz)
     measurement = get(name)
     iq = config.iq or getattr(measurement, "view", None) == "stereo"  # left + j·right
+    source = build_source(config)  # not started yet: a bad calibration below costs nothing
+    calibration = _calibration(config, name, iq, source.rate_hz)
+    nfft = live_nfft(source.rate_hz, config.resolution_hz)
     return LiveEngine(source, measurement, settings, channel=config.channel, iq=iq,
-                      update_hz=config.update_hz, nfft=nfft, averages=config.averages)
+                      update_hz=config.update_hz, nfft=nfft, averages=config.averages, calibration=calibration)
+
+
+def _calibration(config: SessionConfig, measurement: str, iq: bool, rate_hz: float):
+    """The chosen profiles, loaded and checked against the session before any audio starts."""
+    from rtanalyzer.measurements.calibration import CalibrationSet
+
+    if not config.calibration:
+        return None
+    where = {"sim": "the simulated bench", "device": "the sound card", "file": "the file"}.get(config.source, "the session")
+    chosen = CalibrationSet.load(config.calibration, rate_hz, where)
+    chosen.check(measurement, iq)
+    return chosen

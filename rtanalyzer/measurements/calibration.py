@@ -9,8 +9,9 @@ Three kinds, each a small text file (format below, also described in ``calibrati
     ``g·exp(j(φ0 - 2πfτ))``.
 ``passband``
     The receiver's gain against audio frequency, relative to its mean, from a flat multitone
-    through the receiving path. Applied to ``analyze sideband``: each wanted and unwanted level is
-    corrected at its own audio frequency, so a pair on different slopes compares fairly.
+    through the receiving path. Applied to ``analyze sideband`` and ``analyze twotone``: each level
+    (wanted and unwanted; tones and IMD products) is corrected at its own audio frequency, so
+    components on different slopes compare fairly, and the figures made from them are recomputed.
 ``level``
     Volts RMS of a 0 dBFS sine at each input, from a sine of known voltage. Applied to every
     analysis: each ``..._dbfs`` figure gains a ``..._dbv`` twin (dB relative to 1 V RMS).
@@ -43,7 +44,7 @@ import os
 import re
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any, Iterable
+from typing import Any, Callable, Iterable
 
 import numpy as np
 
@@ -52,6 +53,7 @@ from rtanalyzer.dsp.tones import tone_near
 from rtanalyzer.errors import CaptureError, MeasurementError
 from rtanalyzer.measurements.component import spectrum_of
 from rtanalyzer.measurements.quadrature import find_tones, measure_quadrature
+from rtanalyzer.measurements.sideband import worst_in_band
 from rtanalyzer.sources.capture import Capture, Signal
 
 FORMAT = "rtanalyzer-calibration 1"
@@ -70,6 +72,8 @@ _NAME = re.compile(r"[A-Za-z0-9][A-Za-z0-9._-]*$")
 #: Largest channel phase difference a channels calibration accepts, degrees: more means the
 #: inputs were not fed the same signal.
 MAX_CHANNEL_PHASE_DEG = 20.0
+#: Measurements whose levels at audio frequencies a passband profile corrects.
+PASSBAND_MEASUREMENTS = ("sideband", "twotone")
 
 
 @dataclass(frozen=True)
@@ -382,6 +386,27 @@ class CalibrationSet:
     def names(self) -> list[str]:
         return [p.name for p in self.profiles]
 
+    def check(self, measurement: str, stereo: bool) -> None:
+        """Say now, before any audio, when a chosen profile cannot apply to this analysis.
+
+        Raises
+        ------
+        MeasurementError
+            For a channels profile on a one-channel view, or a passband profile on a measurement
+            that has no levels at audio frequencies to correct.
+        """
+        channels, passband = self._get("channels"), self._get("passband")
+        if channels is not None and not stereo:
+            raise MeasurementError(
+                f"calibration '{channels.name}' (channels) corrects the right input against the left: it needs a "
+                "stereo view (I/Q or the 90° network), not one channel"
+            )
+        if passband is not None and measurement not in PASSBAND_MEASUREMENTS:
+            raise MeasurementError(
+                f"calibration '{passband.name}' (passband) applies to {' and '.join(PASSBAND_MEASUREMENTS)} "
+                f"measurements, not to {measurement}"
+            )
+
     def _get(self, kind: str) -> Profile | None:
         return next((p for p in self.profiles if p.kind == kind), None)
 
@@ -405,12 +430,20 @@ class CalibrationSet:
         warnings = list(out.get("warnings", []))
         passband = self._get("passband")
         if passband is not None:
-            if out.get("measurement") != "sideband":
+            if out.get("measurement") not in PASSBAND_MEASUREMENTS:
                 raise MeasurementError(
-                    f"calibration '{passband.name}' (passband) applies to sideband measurements, not to "
-                    f"{out.get('measurement')}"
+                    f"calibration '{passband.name}' (passband) applies to {' and '.join(PASSBAND_MEASUREMENTS)} "
+                    f"measurements, not to {out.get('measurement')}"
                 )
-            out = _correct_sideband(out, passband, warnings)
+            correct = _correct_sideband if out["measurement"] == "sideband" else _correct_twotone
+            gain, outside = _gain_reader(passband)
+            out = correct(out, gain)
+            if outside:
+                warnings.append(
+                    f"passband calibration '{passband.name}' covers {passband.points[0][0]:g}-"
+                    f"{passband.points[-1][0]:g} Hz; figures at {', '.join(f'{f:.0f}' for f in sorted(set(outside)))} "
+                    "Hz use the nearest end's gain"
+                )
         level = self._get("level")
         if level is not None:
             out = _add_volts(out, level, signal)
@@ -429,7 +462,9 @@ def passband_gain_db(profile: Profile, frequency_hz: float) -> tuple[float, bool
     return float(np.interp(np.log(max(f, 1e-3)), np.log(fs), gs)), inside
 
 
-def _correct_sideband(out: dict[str, Any], profile: Profile, warnings: list[str]) -> dict[str, Any]:
+def _gain_reader(profile: Profile) -> tuple[Callable[[float | None], float], list[float]]:
+    """A gain(f) for the profile (0 dB for a missing frequency) and the list it notes, in place,
+    every frequency outside the profile's points in, for one warning at the end."""
     outside: list[float] = []
 
     def gain(f: float | None) -> float:
@@ -440,6 +475,10 @@ def _correct_sideband(out: dict[str, Any], profile: Profile, warnings: list[str]
             outside.append(abs(f))
         return g
 
+    return gain, outside
+
+
+def _correct_sideband(out: dict[str, Any], gain: Callable[[float | None], float]) -> dict[str, Any]:
     points = []
     for p in out["points"]:
         q = dict(p)
@@ -458,6 +497,8 @@ def _correct_sideband(out: dict[str, Any], profile: Profile, warnings: list[str]
         worst = min(scored, key=lambda q: q["sideband_suppression_db"])
         out["worst_sideband_suppression_db"] = worst["sideband_suppression_db"]
         out["worst_is_lower_bound"] = not worst["unwanted_detected"]
+    if out.get("band_hz") is not None:
+        out["worst_in_band"] = worst_in_band(points, out["band_hz"])
     if out.get("carrier_suppression_db") is not None and scored:
         strongest = max((q for q in points if q.get("wanted_dbfs") is not None), key=lambda q: q["wanted_dbfs"],
                         default=None)
@@ -467,11 +508,47 @@ def _correct_sideband(out: dict[str, Any], profile: Profile, warnings: list[str]
             out["carrier_suppression_db"] = round(out["carrier_suppression_db"] - gw + gc, 3)
             if out.get("carrier_dbfs") is not None:
                 out["carrier_dbfs"] = round(out["carrier_dbfs"] - gc, 3)
-    if outside:
-        warnings.append(
-            f"passband calibration '{profile.name}' covers {profile.points[0][0]:g}-{profile.points[-1][0]:g} Hz; "
-            f"figures at {', '.join(f'{f:.0f}' for f in sorted(set(outside)))} Hz use the nearest end's gain"
-        )
+    return out
+
+
+def _correct_twotone(out: dict[str, Any], gain: Callable[[float | None], float]) -> dict[str, Any]:
+    """Each tone and product level less the receiver's gain at its frequency; dBc (re the stronger
+    tone), dB PEP (PEP = 20·log10(A1 + A2) of the tones' peak amplitudes) and the worst figures
+    recomputed. A bound (product under the noise) is moved the same way and stays a bound."""
+    old_ref = max(out["tone_dbfs"])
+    tones = [level - gain(f) for f, level in zip(out["tone_hz"], out["tone_dbfs"])]
+    ref = max(tones)
+    pep = float(20.0 * np.log10(sum(10.0 ** (level / 20.0) for level in tones)))
+    out["tone_dbfs"] = [round(level, 3) for level in tones]
+    out["pep_dbfs"] = round(pep, 3)
+    imd = []
+    for o in out["imd"]:
+        q = dict(o)
+        top = None  # (dB PEP, is bound) of the pair's worst
+        for side in ("lower", "upper"):
+            f = o[f"{side}_hz"]
+            if f is None:  # folded, past Nyquist or colliding: not measured, nothing to correct
+                q[f"{side}_passband_correction_db"] = None
+                continue
+            g = gain(f)
+            level = o[f"{side}_dbc"] + old_ref - g  # the product's level, or its bound, corrected
+            if o[f"{side}_dbfs"] is not None:
+                q[f"{side}_dbfs"] = round(o[f"{side}_dbfs"] - g, 3)
+            q[f"{side}_dbc"] = round(level - ref, 3)
+            q[f"{side}_db_pep"] = round(level - pep, 3)
+            q[f"{side}_passband_correction_db"] = round(old_ref - g - ref, 3)  # added to its dBc
+            if top is None or level - pep > top[0]:
+                top = (level - pep, not o[f"{side}_detected"])
+        if top is not None:
+            q["worst_db_pep"], q["worst_is_bound"] = round(top[0], 3), top[1]
+        imd.append(q)
+    out["imd"] = imd
+    scored = [q for q in imd if q.get("worst_db_pep") is not None]
+    if scored:
+        worst = max(scored, key=lambda q: q["worst_db_pep"])
+        out["worst_imd_order"] = worst["order"]
+        out["worst_imd_db_pep"] = worst["worst_db_pep"]
+        out["worst_imd_is_bound"] = worst["worst_is_bound"]
     return out
 
 

@@ -3,14 +3,20 @@
 Opposite (unwanted) sideband suppression = wanted level - unwanted level (dB, positive is
 good); carrier suppression = strongest wanted level - carrier level (dBc below the wanted
 tone). A residue under the noise gives a lower bound on the suppression, never a number.
+Besides the overall worst point, the worst point whose tone lies inside an audio band (``band``,
+default 300-3000 Hz) is reported: tones outside the band a builder cares about should not hide
+or set the figure that matters.
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
-from typing import Any, Mapping
+from dataclasses import dataclass, field, replace
+from typing import Any, Mapping, Sequence
+
+import numpy as np
 
 from rtanalyzer.dsp.spectrum import Spectrum
+from rtanalyzer.errors import MeasurementError
 from rtanalyzer.measurements.base import Parameter, settings_with_defaults
 from rtanalyzer.measurements.component import Component, measure_at, plan_floor, rounded, spectrum_of
 from rtanalyzer.measurements.plan import PlanRequest, lock
@@ -23,6 +29,49 @@ PLAN_PARAMETERS = (
               choices=("above", "below", "auto")),
     Parameter("resolution", float, "analysis bin width to aim for", 1.0, unit="Hz"),
 )
+DEFAULT_BAND_HZ = (300.0, 3000.0)
+
+
+def check_band(band: Sequence[Any]) -> tuple[float, float]:
+    """``band`` as (low, high) Hz; anything but two finite frequencies 0 < low < high is a one-line error."""
+    try:
+        lo, hi = (float(b) for b in band)
+    except (TypeError, ValueError):
+        raise MeasurementError(f"--band {band!r}: give two frequencies in Hz, LOW HIGH") from None
+    if not (np.isfinite(lo) and np.isfinite(hi) and 0.0 < lo < hi):
+        raise MeasurementError(f"--band {lo:g} {hi:g}: give two frequencies in Hz above 0, low below high")
+    return lo, hi
+
+
+def worst_in_band(points: Sequence[Mapping[str, Any]], band: Sequence[float]) -> dict[str, Any] | None:
+    """The point with the lowest suppression among those whose tone lies in ``band`` (ends included).
+
+    Works on the JSON points, so a calibration that changes their figures afterwards can reuse it.
+
+    Returns
+    -------
+    dict or None
+        ``{"tone_hz", "sideband_suppression_db", "is_lower_bound"}``; None when no point inside
+        has a figure.
+
+    Examples
+    --------
+    >>> pts = [{"tone_hz": 200.0, "sideband_suppression_db": 30.0, "unwanted_detected": True},
+    ...        {"tone_hz": 2900.0, "sideband_suppression_db": 41.2, "unwanted_detected": True},
+    ...        {"tone_hz": 1000.0, "sideband_suppression_db": 62.0, "unwanted_detected": False}]
+    >>> worst_in_band(pts, (300.0, 3000.0))
+    {'tone_hz': 2900.0, 'sideband_suppression_db': 41.2, 'is_lower_bound': False}
+    """
+    lo, hi = band
+    inside = [p for p in points if lo <= p["tone_hz"] <= hi and p.get("sideband_suppression_db") is not None]
+    if not inside:
+        return None
+    worst = min(inside, key=lambda p: p["sideband_suppression_db"])
+    return {
+        "tone_hz": worst["tone_hz"],
+        "sideband_suppression_db": worst["sideband_suppression_db"],
+        "is_lower_bound": not worst["unwanted_detected"],
+    }
 
 
 @dataclass(frozen=True)
@@ -51,6 +100,7 @@ class SidebandResult:
     clipped: bool
     signal_label: str
     warnings: tuple[str, ...] = field(default=())
+    band_hz: tuple[float, float] = DEFAULT_BAND_HZ
 
     @property
     def strongest_wanted_dbfs(self) -> float | None:
@@ -67,8 +117,23 @@ class SidebandResult:
         scored = [p for p in self.points if p.suppression_db is not None]
         return min(scored, key=lambda p: p.suppression_db) if scored else None
 
+    def points_json(self) -> list[dict[str, Any]]:
+        return [
+            {
+                "tone_hz": p.tone_hz,
+                "wanted_hz": rounded(p.wanted.frequency_hz),
+                "unwanted_hz": rounded(p.unwanted.frequency_hz),
+                "wanted_dbfs": rounded(p.wanted.level_dbfs),
+                "unwanted_dbfs": rounded(p.unwanted.level_dbfs),
+                "unwanted_detected": p.unwanted.detected,
+                "sideband_suppression_db": rounded(p.suppression_db),
+            }
+            for p in self.points
+        ]
+
     def to_json(self) -> dict[str, Any]:
         worst = self.worst_point
+        points = self.points_json()
         return {
             "measurement": "sideband",
             "signal": self.signal_label,
@@ -79,20 +144,11 @@ class SidebandResult:
             "carrier_suppression_db": rounded(self.carrier_suppression_db),
             "wanted_side": self.wanted_side,
             "tuning_offset_hz": rounded(self.tuning_offset_hz),
-            "points": [
-                {
-                    "tone_hz": p.tone_hz,
-                    "wanted_hz": rounded(p.wanted.frequency_hz),
-                    "unwanted_hz": rounded(p.unwanted.frequency_hz),
-                    "wanted_dbfs": rounded(p.wanted.level_dbfs),
-                    "unwanted_dbfs": rounded(p.unwanted.level_dbfs),
-                    "unwanted_detected": p.unwanted.detected,
-                    "sideband_suppression_db": rounded(p.suppression_db),
-                }
-                for p in self.points
-            ],
+            "points": points,
             "worst_sideband_suppression_db": rounded(worst.suppression_db) if worst else None,
             "worst_is_lower_bound": (not worst.unwanted.detected) if worst else None,
+            "band_hz": list(self.band_hz),
+            "worst_in_band": worst_in_band(points, self.band_hz),
             "noise_floor_dbfs": rounded(self.noise_floor_dbfs),
             "analysis_bandwidth_hz": rounded(self.analysis_bandwidth_hz, 4),
             "clipped": self.clipped,
@@ -109,11 +165,13 @@ class SidebandMeasurement:
         Parameter("tone", float, "modulating tone fed to the exciter (repeat for several)",
                   required=True, nargs="+", unit="Hz"),
         *PLAN_PARAMETERS,
+        Parameter("band", float, "audio band whose worst point is reported", DEFAULT_BAND_HZ, nargs=2, unit="Hz"),
     )
 
     def measure(self, signal: Signal, settings: Mapping[str, Any], spectrum: Spectrum | None = None) -> SidebandResult:
         """Measure ``signal``; a live engine may pass its running ``spectrum`` of the same signal."""
         s = settings_with_defaults(self, settings)
+        band = check_band(s["band"])
         request = PlanRequest(tuple(float(t) for t in s["tone"]), s["carrier"], s["wanted"])
         offline = spectrum is None
         spectrum = spectrum_of(signal, s["resolution"]) if offline else spectrum
@@ -149,7 +207,7 @@ class SidebandMeasurement:
                 )
         if signal.is_complex and abs(locked.carrier_hz) < 2 * spectrum.bin_hz * 6:
             warnings.append("the carrier sits at 0 Hz of the I/Q capture: the sound card's DC offset adds to it")
-        return SidebandResult(
+        result = SidebandResult(
             sample_rate_hz=signal.rate_hz,
             carrier=carrier,
             points=points,
@@ -160,4 +218,9 @@ class SidebandMeasurement:
             clipped=signal.clipped,
             signal_label=signal.label,
             warnings=tuple(warnings),
+            band_hz=band,
         )
+        if worst_in_band(result.points_json(), band) is None:
+            note = f"no tone with a suppression figure lies inside the band {band[0]:g}-{band[1]:g} Hz (--band): no in-band worst"
+            result = replace(result, warnings=(*result.warnings, note))
+        return result

@@ -95,7 +95,7 @@ class Snapshot:
     setup : dict
         Other facts of the set-up (file format and length, simulated bench knobs...).
     calibration : tuple of str
-        Names of the calibration profiles in force (none exist yet: always empty for now).
+        Names of the calibration profiles in force (as the result lists them under "calibration").
     spectrum : CompactSpectrum or None
         The averaged spectrum the figures came from, compacted; None when not loaded.
     clipped : bool
