@@ -13,6 +13,7 @@ from __future__ import annotations
 import atexit
 import json
 import os
+import re
 import shutil
 import subprocess
 import sys
@@ -176,7 +177,9 @@ def test_first_start_runs_on_the_bench_with_a_banner_cautions_and_true_figures(q
                     float(window.updates_label.text().split()[0]) > 10.0, timeout=3000)
     assert "simulated bench" in window.source_label.text() and "48000 Hz" in window.rate_label.text()
     assert "peak" in window.meters.rows[0][1].text() and "dBFS" in window.meters.rows[0][1].text()
-    assert "dropped 0" in window.meters.xrun_label.text()
+    # The count itself depends on the machine's load (a starved bench thread counts what a card
+    # would have lost), so only its presence is checked here.
+    assert re.search(r"dropped \d+", window.meters.xrun_label.text())
     # the spectrum got the plan's markers, levels from the readout, and the noise floor's bandwidth
     frame = window.last_frame
     assert sorted(m.role for m in frame.markers) == ["carrier", "unwanted", "wanted"]

@@ -39,6 +39,7 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
 
 
 def run(args: argparse.Namespace) -> int:
+    from rtanalyzer.cli.progress import terminal_progress
     from rtanalyzer.measurements import calibration as cal
     from rtanalyzer.measurements.quadrature import stereo_view
     from rtanalyzer.sources.wavfile import read_capture
@@ -52,7 +53,7 @@ def run(args: argparse.Namespace) -> int:
                                             args.file)
     elif args.kind == "passband":
         profile = cal.make_passband_profile(capture.view(channel=args.channel), args.name, args.tones or (),
-                                            args.device, args.file)
+                                            args.device, args.file, progress=terminal_progress("passband: tone"))
     else:
         profile = cal.make_level_profile(capture, args.volts_rms, args.name,
                                          (args.channel,) if args.channel else (), args.device, args.file)

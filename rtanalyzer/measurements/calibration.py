@@ -294,16 +294,24 @@ def make_channels_profile(signal: Signal, name: str, device: str = "unknown", ma
 
 
 def make_passband_profile(signal: Signal, name: str, tones: Iterable[float] = (), device: str = "unknown",
-                          made_from: str = "", range_db: float = 40.0) -> Profile:
-    """Receiver gain against audio frequency from a flat multitone, relative to its mean level.
+                          made_from: str = "", range_db: float = 40.0, progress=None) -> Profile:
+    """Receiver gain against audio frequency from a flat reference, relative to its mean level.
+
+    The reference is the generator's multitone (all tones at once) or stepped sweep (one tone a
+    step) played through the receiving path. Each tone is read by the same per-tone analysis as
+    the phase network's (``measure_quadrature`` on the channel paired with itself): over every
+    sample it plays in, for a sweep only the settled part of its step, so a sweep's switching
+    transients never count as tones.
 
     Parameters
     ----------
     signal : Signal
-        One real channel carrying the multitone after the receiver.
+        One real channel carrying the reference after the receiver.
     tones : iterable of float
         Audio frequencies of the tones in the capture; default: every tone found within
         ``range_db`` of the strongest.
+    progress : callable, optional
+        ``progress(done, total)`` after each tone.
 
     Raises
     ------
@@ -312,16 +320,15 @@ def make_passband_profile(signal: Signal, name: str, tones: Iterable[float] = ()
     """
     if signal.is_complex:
         raise MeasurementError("calibrate passband reads one real channel (--channel N), not an I/Q view")
-    spectrum = spectrum_of(signal)
-    freqs = find_tones(spectrum, range_db, tuple(float(t) for t in tones), signal.where)
-    if len(freqs) < 2:
+    x = np.asarray(signal.samples, dtype=np.float64)
+    paired = dataclasses.replace(signal, samples=x + 1j * x)
+    result = measure_quadrature(paired, tuple(float(t) for t in tones), band_hz=(0.0, signal.rate_hz / 2),
+                                range_db=range_db, progress=progress)
+    if len(result.points) < 2:
         raise MeasurementError(f"{signal.where}: a passband calibration needs at least two tones; found "
-                               f"{len(freqs)}")
-    levels = []
-    for f in freqs:
-        est = tone_near(spectrum, f, 1.5)
-        levels.append(10.0 * np.log10(est.power))
-    levels = np.array(levels)
+                               f"{len(result.points)}")
+    freqs = np.array([p.frequency_hz for p in result.points])
+    levels = np.array([p.left_dbfs for p in result.points])
     points = tuple((float(f), float(g)) for f, g in zip(freqs, levels - levels.mean()))
     return Profile("passband", check_name(name), signal.rate_hz, _now(), device, made_from, {}, points)
 
