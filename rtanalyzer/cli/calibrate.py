@@ -50,7 +50,7 @@ def run(args: argparse.Namespace) -> int:
     capture = read_capture(args.file)
     if args.kind == "channels":
         profile = cal.make_channels_profile(stereo_view(capture, "calibrate channels"), args.name, args.device,
-                                            args.file)
+                                            args.file, progress=terminal_progress("channels: tone"))
     elif args.kind == "passband":
         profile = cal.make_passband_profile(capture.view(channel=args.channel), args.name, args.tones or (),
                                             args.device, args.file, progress=terminal_progress("passband: tone"))

@@ -239,7 +239,8 @@ def _now() -> str:
 # ---- making profiles ------------------------------------------------------------------------
 
 
-def make_channels_profile(signal: Signal, name: str, device: str = "unknown", made_from: str = "") -> Profile:
+def make_channels_profile(signal: Signal, name: str, device: str = "unknown", made_from: str = "",
+                          progress=None) -> Profile:
     """Right-versus-left gain, phase and delay from a stereo capture of one signal fed to both inputs.
 
     Each tone gives the right channel's gain and phase relative to the left (``dsp.quadrature``);
@@ -264,7 +265,7 @@ def make_channels_profile(signal: Signal, name: str, device: str = "unknown", ma
     >>> [round(prof.values[k], 4) for k in ("gain_db", "phase_deg")], abs(prof.values["delay_s"]) < 1e-9
     ([0.2, 0.5], True)
     """
-    result = measure_quadrature(signal, band_hz=(0.0, signal.rate_hz / 2))
+    result = measure_quadrature(signal, band_hz=(0.0, signal.rate_hz / 2), progress=progress)
     freqs = np.array([p.frequency_hz for p in result.points])
     psi = np.unwrap(np.radians([-p.phase_difference_deg for p in result.points]))
     worst = float(np.max(np.abs(np.degrees(psi))))
