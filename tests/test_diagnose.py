@@ -159,3 +159,17 @@ def test_probe_on_the_simulated_bench_finds_the_best_phase_trim():
     best_trim = float(np.degrees(quadrature_error_rad(np.array([1000.0]), knobs0))[0])
     out = probe(readings)
     assert out["best_position_nudges"] * step == pytest.approx(best_trim, abs=0.05)
+
+
+def test_sideband_variation_counts_only_measured_points():
+    # Two measured points 0.5 dB apart and two lower bounds far higher: the suppression is not
+    # shown to vary across the band (a bound says "at least", not where the residue is).
+    points = [
+        {"tone_hz": 400.0, "sideband_suppression_db": 40.0, "unwanted_detected": True},
+        {"tone_hz": 800.0, "sideband_suppression_db": 40.5, "unwanted_detected": True},
+        {"tone_hz": 1600.0, "sideband_suppression_db": 55.0, "unwanted_detected": False},
+        {"tone_hz": 2400.0, "sideband_suppression_db": 60.0, "unwanted_detected": False},
+    ]
+    d = diagnose_sideband(points)
+    assert d["variation_db"] == 0.5
+    assert not any("varies" in line for line in d["advice"])

@@ -1,29 +1,30 @@
-"""The network band view: a live phase-network measurement against audio frequency, for trimming.
+"""The band view: a live measurement against audio frequency, for trimming across the band.
 
-With the measurement "90° network (stereo)" the live session reads the network's I output on the
-left input and its Q output on the right (``quadrature`` plugin). This window collects the
-points of every readout (a multitone gives them all at once, a stepped sweep one step at a time)
-and shows, against frequency on a log axis:
+It follows two measurements (:mod:`rtanalyzer.gui.band_modes` holds what each one shows):
 
-- the phase error (degrees; the readout gives its time equivalent in µs as well),
-- the amplitude ratio Q/I (dB),
-- the opposite-sideband suppression those two errors alone allow (dB),
+- "90° network (stereo)" (``quadrature``): the network's I output on the left input, its Q output
+  on the right. Against frequency: the phase error (degrees; the readout gives its time
+  equivalent in µs as well), the amplitude ratio Q/I (dB) and the opposite-sideband suppression
+  those two errors alone allow (dB). Above the plots, the phase difference of the selected (or
+  strongest) tone in degrees and in µs side by side, large enough to read while turning a trimmer.
+- "sideband and carrier" (``sideband``): the whole exciter through the receiver. Against the
+  modulating tone's frequency: the measured opposite-sideband suppression (a point whose unwanted
+  sideband is under the noise is a lower bound, "≥", drawn as a hollow triangle) and the wanted
+  level (the flatness of exciter and receiver together). Above, the shown tone's suppression.
 
-with the user's band shaded and its worst point ringed and stated in words. Above the plots, the
-phase difference of the selected (or strongest) tone in degrees and in µs side by side, large
-enough to read while turning a trimmer; below them, the diagnosis library's advice for the points
-in the band. A stepped sweep shows its progress (step i of N).
+The view collects the points of every readout (a multitone gives them all at once, a stepped
+sweep one step at a time), shades the user's band and rings its worst point, states it in words,
+and shows the diagnosis library's advice for the points in the band. A stepped sweep shows its
+progress (step i of N). A readout of the other measurement, or a new session, starts afresh.
 
-:func:`attach` wires the view into the main window (View ▸ Network band…, the sweep progress in
+:func:`attach` wires the view into the main window (View ▸ Across the band…, the sweep progress in
 the status bar) without the window knowing about it.
 """
 
 from __future__ import annotations
 
-import math
 from typing import Any
 
-import numpy as np
 from PyQt6.QtCore import Qt, QTimer
 from PyQt6.QtGui import QAction, QFont, QKeySequence
 from PyQt6.QtWidgets import (
@@ -37,52 +38,15 @@ from PyQt6.QtWidgets import (
     QVBoxLayout,
     QWidget,
 )
-from vispy import scene
 
 from rtanalyzer.gui import style
-from rtanalyzer.gui.plots import MINUS, Plot, PlotCanvas, _line, _rgba
-from rtanalyzer.gui.ticks import frequency_ticks
+from rtanalyzer.gui.band_modes import MODES, BandMode
+from rtanalyzer.gui.band_plot import BandPlot
+from rtanalyzer.gui.plots import PlotCanvas
 
 DEFAULT_BAND_HZ = (300.0, 3000.0)
-X_RANGE_HZ = (100.0, 6000.0)  # the frequency axis, widened to take in every point
 REDRAW_MS = 200  # the plots at most five times a second; the figures with every readout
-BAND_FILL = "#e3efe9"  # a pale tint of the wanted teal: the band judged
-POINT = style.TRACE
-WORST = style.UNWANTED
-
-
-def band_value_ticks(target: int = 5):
-    """Linear ticks labelled with enough decimals for their step (a 0.25 step keeps two)."""
-    from rtanalyzer.gui.ticks import linear_ticks
-
-    def ticks(lo: float, hi: float):
-        major, minor = linear_ticks(lo, hi, target)
-        step = float(major[1] - major[0]) if len(major) > 1 else 1.0
-        decimals = 0
-        while decimals < 6 and abs(round(step, decimals) - step) > 1e-9 * max(step, 1e-12):
-            decimals += 1
-        labels = []
-        for v in major:
-            text = f"{v:.{decimals}f}"
-            if float(text) == 0:
-                text = text.lstrip("-")
-            labels.append(text.replace("-", MINUS))
-        return major, minor, labels
-
-    return ticks
-
-
-def us_of(phase_deg: float, frequency_hz: float) -> float:
-    """A phase at ``frequency_hz`` as a time: φ/(360·f), in microseconds."""
-    return phase_deg / (360.0 * frequency_hz) * 1e6
-
-
-def _signed(value: float, decimals: int) -> str:
-    return f"{value:+.{decimals}f}".replace("-", MINUS)
-
-
-def _plain(value: float, decimals: int) -> str:
-    return f"{value:.{decimals}f}".replace("-", MINUS)
+PLOT_SLOTS = max(len(m.plots) for m in MODES.values())
 
 
 def _font(points: float, bold: bool = False) -> QFont:
@@ -92,64 +56,14 @@ def _font(points: float, bold: bool = False) -> QFont:
     return font
 
 
-class BandPlot(Plot):
-    """One quantity against log frequency: the band shaded, the points joined, the worst ringed."""
-
-    def __init__(self, host: PlotCanvas, title: str, unit: str, key: str, pad: float) -> None:
-        super().__init__(host, title, "audio frequency, Hz", unit, frequency_ticks(True), band_value_ticks(5))
-        self.set_legend("ringed: worst in band", WORST)
-        self.key = key
-        self.pad = pad
-        s = self.view.scene
-        self.band = scene.Rectangle(center=(0.5, 0.5), width=1.0, height=1.0, color=BAND_FILL, parent=s)
-        self.band.order = -5
-        self.line = _line(s, POINT, 2.0)
-        self.dots = scene.Markers(parent=s)
-        self.worst = scene.Markers(parent=s)
-        self.line.visible = self.dots.visible = self.worst.visible = False
-        self.set_range(x=np.log10(X_RANGE_HZ), y=(-1.0, 1.0))
-
-    def show_points(self, points: list[dict[str, Any]], band: tuple[float, float], worst: dict | None) -> None:
-        xs_all = [math.log10(X_RANGE_HZ[0]), math.log10(X_RANGE_HZ[1])]
-        pts = [(math.log10(p["frequency_hz"]), p[self.key]) for p in points if p.get(self.key) is not None]
-        if pts:
-            xs_all += [x for x, _ in pts]
-        x0, x1 = min(xs_all) - 0.03, max(xs_all) + 0.03
-        if pts:
-            data = np.asarray(pts, np.float32)
-            ys = data[:, 1]
-            lo, hi = float(ys.min()), float(ys.max())
-            span = max(hi - lo, self.pad)
-            y0, y1 = lo - 0.2 * span, hi + 0.2 * span
-            self.line.set_data(data)
-            self.dots.set_data(data, size=7, face_color=_rgba(POINT), edge_width=0)
-            self.line.visible = len(pts) > 1
-            self.dots.visible = True
-        else:
-            y0, y1 = -self.pad, self.pad
-            self.line.visible = self.dots.visible = False
-        if worst is not None and worst.get(self.key) is not None:
-            at = np.asarray([[math.log10(worst["frequency_hz"]), worst[self.key]]], np.float32)
-            self.worst.set_data(at, size=15, face_color=(1, 1, 1, 0), edge_color=_rgba(WORST), edge_width=2.5)
-            self.worst.visible = True
-        else:
-            self.worst.visible = False
-        b0, b1 = math.log10(band[0]), math.log10(band[1])
-        height = (y1 - y0) * 4.0
-        self.band.center = ((b0 + b1) / 2.0, (y0 + y1) / 2.0)
-        self.band.width = max(b1 - b0, 1e-6)
-        self.band.height = height
-        self.set_range(x=(x0, x1), y=(y0, y1))
-
-
 class BandView(QWidget):
-    """The network band window (a top-level window; :func:`attach` makes and shows it)."""
+    """The band window (a top-level window; :func:`attach` makes and shows it)."""
 
-    def __init__(self, parent: QWidget | None = None) -> None:
+    def __init__(self, parent: QWidget | None = None, measurement: str = "quadrature") -> None:
         super().__init__(parent, Qt.WindowType.Window)
         self.setObjectName("band_view")
-        self.setWindowTitle("rtanalyzer — 90° network band")
         self.setStyleSheet(style.STYLE_SHEET + f"QWidget#band_view {{ background: {style.PAPER}; }}")
+        self.mode: BandMode = MODES[measurement]
         self.points: dict[float, dict[str, Any]] = {}  # by frequency (0.1 Hz), the newest reading
         self.latest: list[dict[str, Any]] = []  # the newest readout's points
         self.worst: dict[str, Any] | None = None
@@ -157,6 +71,7 @@ class BandView(QWidget):
         self.sweep_steps = 0
         self._dirty = False
         self._build()
+        self.set_mode(measurement, force=True)
         self.timer = QTimer(self)
         self.timer.setInterval(REDRAW_MS)
         self.timer.timeout.connect(self._redraw)
@@ -164,7 +79,7 @@ class BandView(QWidget):
 
     # -- building -------------------------------------------------------------------------------------
 
-    def _tile(self, title: str) -> tuple[QFrame, QVBoxLayout]:
+    def _tile(self, title: str) -> tuple[QFrame, QVBoxLayout, QLabel]:
         tile = QFrame()
         tile.setObjectName("tile")
         box = QVBoxLayout(tile)
@@ -172,7 +87,7 @@ class BandView(QWidget):
         label = QLabel(title)
         label.setFont(_font(style.TITLE_PT, True))
         box.addWidget(label)
-        return tile, box
+        return tile, box, label
 
     def _build(self) -> None:
         outer = QVBoxLayout(self)
@@ -180,28 +95,31 @@ class BandView(QWidget):
         outer.setSpacing(6)
         tiles = QHBoxLayout()
         tiles.setSpacing(8)
-        tile, box = self._tile("Phase difference I − Q")
+        tile, box, self.tone_title = self._tile("")
+        self.tone_title.setObjectName("tone_title")
         row = QHBoxLayout()
-        self.deg_value = QLabel("—")
+        self.deg_value = QLabel("—")  # the first large figure (degrees for the network)
         self.deg_value.setObjectName("deg_value")
-        self.us_value = QLabel("—")
+        self.us_value = QLabel("—")  # the second (µs for the network)
         self.us_value.setObjectName("us_value")
-        for value, unit in ((self.deg_value, "°"), (self.us_value, "µs")):
+        self.unit_labels: list[QLabel] = []
+        for value in (self.deg_value, self.us_value):
             value.setFont(_font(style.VALUE_PT, True))
             row.addWidget(value)
-            u = QLabel(unit)
+            u = QLabel("")
             u.setFont(_font(style.UNIT_PT))
             u.setStyleSheet(f"color: {style.INK_SOFT};")
             row.addWidget(u)
             row.addSpacing(24)
+            self.unit_labels.append(u)
         row.addStretch(1)
         box.addLayout(row)
-        self.tone_detail = QLabel("waiting for the network's outputs")
+        self.tone_detail = QLabel("")
         self.tone_detail.setObjectName("tone_detail")
         self.tone_detail.setFont(_font(style.SMALL_PT + 2))
         box.addWidget(self.tone_detail)
         tiles.addWidget(tile, 3)
-        tile, box = self._tile("Worst point in the band")
+        tile, box, _ = self._tile("Worst point in the band")
         self.worst_text = QLabel("—")
         self.worst_text.setObjectName("worst_text")
         self.worst_text.setFont(_font(style.UNIT_PT + 4, True))
@@ -235,7 +153,7 @@ class BandView(QWidget):
             spin.setSuffix(" Hz")
             spin.setKeyboardTracking(False)
             spin.setValue(value)
-            spin.valueChanged.connect(lambda _: self._band_changed())
+            spin.valueChanged.connect(lambda _: self._evaluate())
         self.band_low.setObjectName("band_low")
         self.band_high.setObjectName("band_high")
         bar.addWidget(self.band_low)
@@ -255,15 +173,13 @@ class BandView(QWidget):
         outer.addLayout(bar)
 
         self.canvas = PlotCanvas()
-        self.phase_plot = self.canvas.add(BandPlot(self.canvas, "Phase error", "degrees", "phase_error_deg", 0.5))
-        self.ratio_plot = self.canvas.add(BandPlot(self.canvas, "Amplitude ratio Q/I", "dB", "amplitude_ratio_db", 0.2))
-        self.supp_plot = self.canvas.add(BandPlot(self.canvas, "Predicted suppression", "dB",
-                                                  "predicted_suppression_db", 5.0))
+        specs = MODES["quadrature"].plots
+        self.plots = [self.canvas.add(BandPlot(self.canvas, specs[i % len(specs)])) for i in range(PLOT_SLOTS)]
         self.canvas.share_fonts()
         self.canvas.native.setMinimumHeight(280)
         outer.addWidget(self.canvas.native, 1)
 
-        tile, box = self._tile("Which way to turn (points in the band)")
+        tile, box, self.advice_title = self._tile("")
         self.advice_label = QLabel("needs points inside the band")
         self.advice_label.setObjectName("advice")
         self.advice_label.setFont(_font(style.SMALL_PT + 2))
@@ -274,6 +190,29 @@ class BandView(QWidget):
         box.addWidget(self.advice_label)
         outer.addWidget(tile)
         self.resize(1400, 820)
+
+    # -- the measurement followed ---------------------------------------------------------------------
+
+    @property
+    def measurement(self) -> str:
+        return self.mode.measurement
+
+    def set_mode(self, measurement: str, force: bool = False) -> None:
+        """Follow ``measurement`` ("quadrature" or "sideband"): its plots and words, no points yet."""
+        if measurement not in MODES or (measurement == self.mode.measurement and not force):
+            return
+        self.mode = mode = MODES[measurement]
+        self.setWindowTitle(f"rtanalyzer — {mode.window_title}")
+        self.tone_title.setText(mode.tone_title)
+        self.advice_title.setText(mode.advice_title)
+        for label, unit in zip(self.unit_labels, mode.units):
+            label.setText(unit)
+        for i, plot in enumerate(self.plots):
+            shown = i < len(mode.plots)
+            plot.configure(mode.plots[i] if shown else plot.spec, shown)
+            self.canvas.weights[i] = 1.0 if shown else 0.0
+        self.canvas.layout()
+        self.clear()
 
     # -- state ----------------------------------------------------------------------------------------
 
@@ -290,6 +229,7 @@ class BandView(QWidget):
         while self.tone_choice.count() > 1:
             self.tone_choice.removeItem(1)
         self.tone_choice.blockSignals(False)
+        self.tone_detail.setText(self.mode.waiting)
         self._evaluate()
         self._show_tone()
 
@@ -302,21 +242,26 @@ class BandView(QWidget):
             self.progress.hide()
 
     def show_readout(self, readout) -> None:
-        """Take a live readout (any measurement; only the phase-network figures are used)."""
+        """Take a live readout (the band's measurements give points; others only a note)."""
         sweep = getattr(readout, "sweep", None)
         if sweep is not None and self.sweep_steps:
             self.progress.setValue(sweep["step"] % self.sweep_steps + 1)
             self.progress.show()
         elif sweep is None:
             self.progress.hide()
+        if readout.measurement not in MODES:
+            self.tone_detail.setText(f"the band view follows the 90° network or the sideband measurement, "
+                                     f"not {readout.measurement}")
+            return
+        self.set_mode(readout.measurement)
         result = readout.result
-        if readout.measurement != "quadrature" or not result:
+        if not result:
             if readout.error and readout.error != "settling":
                 self.tone_detail.setText(f"no figures: {readout.error}")
             return
-        self.latest = list(result.get("points") or [])
+        self.latest = self.mode.points_of(result)
         for p in self.latest:
-            self.points[self._key(float(p["frequency_hz"]))] = p
+            self.points[self._key(float(p[self.mode.fkey]))] = p
         self._update_choices()
         self._evaluate()
         self._show_tone()
@@ -351,43 +296,27 @@ class BandView(QWidget):
                         key=lambda i: abs(self.tone_choice.itemData(i) - frequency_hz))
         self.tone_choice.setCurrentIndex(index)
 
-    def _band_changed(self) -> None:
-        self._evaluate()
+    def in_band(self) -> list[dict[str, Any]]:
+        """The points inside the band, by frequency."""
+        lo, hi = self.band
+        return [p for p in self.sorted_points() if lo <= p[self.mode.fkey] <= hi]
 
     def _evaluate(self) -> None:
         """Worst point in the band and the diagnosis of the band's points."""
-        lo, hi = self.band
-        inside = [p for p in self.sorted_points() if lo <= p["frequency_hz"] <= hi]
-        self.worst = min(inside, key=lambda p: p["predicted_suppression_db"]) if inside else None
+        mode, band = self.mode, self.band
+        inside = self.in_band()
+        scored = [p for p in inside if mode.score(p) is not None]
+        self.worst = min(scored, key=mode.score) if scored else None
         if self.worst is None:
             self.worst_text.setText("—")
-            self.worst_detail.setText(f"no point inside {lo:g}–{hi:g} Hz yet" if self.points else "")
+            self.worst_detail.setText(f"no point with a figure inside {band[0]:g}–{band[1]:g} Hz yet"
+                                      if self.points else "")
         else:
-            w = self.worst
-            self.worst_text.setText(f"worst {w['predicted_suppression_db']:.1f} dB at {w['frequency_hz']:.0f} Hz")
-            self.worst_detail.setText(
-                f"{len(inside)} point{'s' if len(inside) != 1 else ''} in {lo:g}–{hi:g} Hz · there: phase error "
-                f"{_signed(w['phase_error_deg'], 2)}° ({_signed(us_of(w['phase_error_deg'], w['frequency_hz']), 2)} µs), "
-                f"ratio {_signed(w['amplitude_ratio_db'], 2)} dB")
-        self.advice = self._diagnose(inside)
+            self.worst_text.setText(mode.worst_text(self.worst))
+            self.worst_detail.setText(mode.worst_detail(self.worst, inside, band))
+        self.advice = mode.advice(inside, band) if scored else []
         self.advice_label.setText("\n".join(self.advice) if self.advice else "needs points inside the band")
         self._dirty = True
-
-    def _diagnose(self, inside: list[dict[str, Any]]) -> list[str]:
-        if not inside:
-            return []
-        from rtanalyzer.errors import RtaError
-        from rtanalyzer.measurements.diagnosis import diagnose_quadrature
-
-        try:
-            d = diagnose_quadrature(inside, None, self.band)
-        except (RtaError, ValueError, np.linalg.LinAlgError) as exc:
-            return [f"no advice yet: {exc}"]
-        lines = list(d.get("advice") or [])
-        if d.get("limited_now_by"):
-            lines.insert(0, f"limited now by {d['limited_now_by']}; after both trims the worst would be "
-                            f"{d['after_trims_worst_predicted_suppression_db']:.1f} dB")
-        return lines
 
     def shown_point(self) -> dict[str, Any] | None:
         """The tone chosen, or the strongest of the newest readout."""
@@ -396,7 +325,7 @@ class BandView(QWidget):
             return self.points.get(key)
         if not self.latest:
             return None
-        return max(self.latest, key=lambda p: p.get("left_dbfs", -999.0) + p.get("right_dbfs", -999.0))
+        return max(self.latest, key=self.mode.strength)
 
     def _show_tone(self) -> None:
         p = self.shown_point()
@@ -404,21 +333,18 @@ class BandView(QWidget):
             self.deg_value.setText("—")
             self.us_value.setText("—")
             return
-        f, deg = p["frequency_hz"], p["phase_difference_deg"]
-        self.deg_value.setText(_plain(deg, 2))
-        self.us_value.setText(_plain(us_of(deg, f), 1))
-        err = p["phase_error_deg"]
-        self.tone_detail.setText(
-            f"at {f:.1f} Hz · error {_signed(err, 2)}° = {_signed(us_of(err, f), 2)} µs · ratio "
-            f"{_signed(p['amplitude_ratio_db'], 2)} dB · suppression {p['predicted_suppression_db']:.1f} dB")
+        first, second, detail = self.mode.figures(p)
+        self.deg_value.setText(first)
+        self.us_value.setText(second)
+        self.tone_detail.setText(detail)
 
     def _redraw(self) -> None:
         if not self._dirty or not self.isVisible():
             return
         self._dirty = False
         pts, band = self.sorted_points(), self.band
-        for plot in (self.phase_plot, self.ratio_plot, self.supp_plot):
-            plot.show_points(pts, band, self.worst)
+        for plot in self.plots[: len(self.mode.plots)]:
+            plot.show_points(pts, self.mode.fkey, band, self.worst)
         self.canvas.update()
 
     def closeEvent(self, event) -> None:  # noqa: N802 - Qt
@@ -438,9 +364,19 @@ def _sweep_steps(window) -> int:
     return len(signal.frequencies_hz) if isinstance(signal, Sweep) else 0
 
 
+def opens_by_itself(measurement: str, signal) -> bool:
+    """Does a session of ``measurement`` driven by ``signal`` open the band view? The network
+    always; the exciter's suppression when the drive spans the band (a multitone or a sweep)."""
+    from rtanalyzer.generator.signals import Multitone, Sweep
+
+    if measurement == "quadrature":
+        return True
+    return measurement == "sideband" and isinstance(signal, (Multitone, Sweep))
+
+
 def attach(window) -> BandView:
-    """Give the main window a network band view: View ▸ Network band…, opened by itself when the
-    session's measurement is the 90° network, and a sweep progress bar in the status bar."""
+    """Give the main window a band view: View ▸ Across the band…, opened by itself when a session
+    starts that has points across the band, and a sweep progress bar in the status bar."""
     view = BandView(window)
     window.band_view = view
     status_progress = QProgressBar()
@@ -457,7 +393,7 @@ def attach(window) -> BandView:
         view.show()
         view.raise_()
 
-    act = QAction("Network band…", window)
+    act = QAction("Across the band…", window)
     act.setObjectName("act_band_view")
     act.setShortcut(QKeySequence("N"))
     act.setShortcutContext(Qt.ShortcutContext.WindowShortcut)
@@ -469,9 +405,13 @@ def attach(window) -> BandView:
             break
 
     def started(engine) -> None:
-        view.clear()
+        name = engine.measurement.name
+        if name in MODES and name != view.measurement:
+            view.set_mode(name)  # clears
+        else:
+            view.clear()
         view.set_sweep(_sweep_steps(window))
-        if engine.measurement.name == "quadrature":
+        if opens_by_itself(name, window.config.signal):
             open_view()
 
     def readout(r) -> None:
@@ -486,8 +426,11 @@ def attach(window) -> BandView:
             status_progress.hide()
         if r.measurement == "quadrature":
             for tile in window.tiles.values():
-                tile.set_unavailable("90° network: View ▸ Network band (N)")
-        if r.measurement == "quadrature" or view.isVisible():
+                tile.set_unavailable("90° network: View ▸ Across the band (N)")
+        engine = window.runner.engine
+        if engine is not None and r.measurement != engine.measurement.name:
+            return  # the session before the newest one: its last readout may still be on its way
+        if r.measurement in MODES or view.isVisible():
             view.show_readout(r)
 
     window.runner.started.connect(started)

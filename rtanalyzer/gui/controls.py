@@ -30,6 +30,8 @@ from rtanalyzer.gui.choices import KIND_NAMES, KINDS, GeneratorChoice
 from rtanalyzer.sources.bench.knobs import BenchKnobs
 
 SOURCE_NAMES = (("sim", "Simulated bench"), ("device", "Sound card"), ("file", "Recording (file)"))
+STEREO_VIEW = "stereo"  # the Capture entry of a measurement that always reads left + j·right
+STEREO_NAME = "stereo: left = I, right = Q"
 RATES = (44100, 48000, 96000, 192000)
 
 # knob -> (label, low, high, step, decimals, unit)
@@ -272,6 +274,7 @@ class ControlsPanel(QWidget):
                           ("iq", "I/Q: 1 = I, 2 = Q")):
             self.input_view.addItem(name, key)
         self.input_view.currentIndexChanged.connect(lambda _: self._emit("view"))
+        self._user_view = self.input_view.currentData()  # the user's choice, kept while a measurement forces stereo
         form.addRow("Capture", self.input_view)
         self.plan_tones = QLineEdit()
         self.plan_tones.setObjectName("plan_tones")
@@ -289,7 +292,7 @@ class ControlsPanel(QWidget):
         for key, name in ((None, "as the signal suggests"), ("sideband", "sideband and carrier"),
                           ("twotone", "two-tone IMD"), ("quadrature", "90° network (stereo)")):
             self.measurement.addItem(name, key)
-        self.measurement.currentIndexChanged.connect(lambda _: self._emit("measurement"))
+        self.measurement.currentIndexChanged.connect(lambda _: (self._follow_measurement(), self._emit("measurement")))
         form.addRow("Figures", self.measurement)
         self.averages = QSpinBox()
         self.averages.setObjectName("averages")
@@ -321,6 +324,33 @@ class ControlsPanel(QWidget):
     def _kind_changed(self, _index: int) -> None:
         self.show_generator_kind(self.kind.currentData())
         self._emit("generator")
+
+    def _follow_measurement(self) -> None:
+        """Show the capture the measurement reads: one that always reads the stereo pair (the 90°
+        network: left = I, right = Q) shows that entry and locks the list; another measurement
+        brings back the user's own choice. Nothing is emitted: the user's choice is unchanged."""
+        combo = self.input_view
+        forced = _reads_stereo(self.measurement.currentData())
+        at = combo.findData(STEREO_VIEW)
+        if forced != (at >= 0):
+            combo.blockSignals(True)
+            if forced:
+                self._user_view = combo.currentData()
+                combo.addItem(STEREO_NAME, STEREO_VIEW)
+                combo.setCurrentIndex(combo.count() - 1)
+            else:
+                combo.removeItem(at)
+                combo.setCurrentIndex(max(0, combo.findData(self._user_view)))
+            combo.blockSignals(False)
+        combo.setEnabled(not forced)
+        combo.setToolTip(f"{self.measurement.currentText()} always reads both inputs: left = I, right = Q"
+                         if forced else "")
+
+    def _set_input_view(self, key: str) -> None:
+        """Show the user's capture choice ``key`` (kept aside while the measurement forces stereo)."""
+        self._user_view = key
+        if self.input_view.findData(STEREO_VIEW) < 0:
+            self.input_view.setCurrentIndex(max(0, self.input_view.findData(key)))
 
     def show_generator_kind(self, kind: str) -> None:
         for name, (widget, kinds) in self.gen_fields.items():
@@ -413,10 +443,10 @@ class ControlsPanel(QWidget):
         elif carrier_default is not None:
             self.carrier.setValue(carrier_default)
         self.wanted.setCurrentIndex(max(0, self.wanted.findData(wanted or "auto")))
-        key = "iq" if iq else str(channel or 1)
-        self.input_view.setCurrentIndex(max(0, self.input_view.findData(key)))
+        self._set_input_view("iq" if iq else str(channel or 1))
         self.plan_tones.setText(" ".join(f"{t:g}" for t in tones))
         self.measurement.setCurrentIndex(max(0, self.measurement.findData(measurement)))
+        self._follow_measurement()
         self.averages.setValue(averages)
         self.mute.setChecked(muted)
         self._quiet = False
@@ -426,7 +456,10 @@ class ControlsPanel(QWidget):
         return carrier, self.wanted.currentData()
 
     def input_choice(self) -> tuple[bool, int | None]:
+        """The user's capture choice (I/Q, channel): not the stereo pair a measurement forces."""
         key = self.input_view.currentData()
+        if key == STEREO_VIEW:
+            key = self._user_view
         return (True, None) if key == "iq" else (False, int(key))
 
     def tones(self) -> tuple[float, ...]:
@@ -437,3 +470,16 @@ class ControlsPanel(QWidget):
             except ValueError:
                 continue
         return tuple(values)
+
+
+def _reads_stereo(measurement: str | None) -> bool:
+    """Does the measurement plugin always read the stereo pair (its ``view`` is "stereo")?"""
+    if not measurement:
+        return False
+    from rtanalyzer.errors import RtaError
+    from rtanalyzer.measurements.registry import get
+
+    try:
+        return getattr(get(measurement), "view", None) == "stereo"
+    except RtaError:  # not installed: the window reports that when it builds the session
+        return False

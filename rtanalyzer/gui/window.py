@@ -48,7 +48,7 @@ from rtanalyzer.gui.runner import DISPLAY_RATES, SessionRunner
 from rtanalyzer.gui.settings import WindowSettings
 from rtanalyzer.gui.widgets import Banner, MetersTile, ReadoutTile, set_style, set_text, signed
 from rtanalyzer.generator.signals import TwoTone
-from rtanalyzer.live.session import SessionConfig, plan_settings
+from rtanalyzer.live.session import SessionConfig, plan_settings, session_nfft
 
 MUTED_CAPTURE_DBFS = -120.0  # a muted generator on the bench: the receiver hears only noise
 STATUS_MS = 500
@@ -141,7 +141,7 @@ class MainWindow(QMainWindow):
         self.status_timer.timeout.connect(self._update_status)
         self.status_timer.start()
         self.cautions = None
-        attach_band_view(self)  # View ▸ Network band…, and the sweep progress
+        attach_band_view(self)  # View ▸ Across the band…, and the sweep progress
         attach_calibration_menu(self)  # Calibration ▸ profiles in force
         self.runner.start(self._effective(config))
 
@@ -400,8 +400,9 @@ class MainWindow(QMainWindow):
         before = self.config.measurement_name
         self.config = self.config.with_changes(signal=signal)
         engine = self.runner.engine
-        if self.config.measurement_name != before or engine is None or self.runner.rebuilding:
-            self.rebuild()
+        if (self.config.measurement_name != before or engine is None or self.runner.rebuilding
+                or engine.nfft != session_nfft(self.config, engine.source.rate_hz)):
+            self.rebuild()  # a new figure, or tones that need another window length
         elif self.config.source == "sim" and hasattr(engine.source, "set_signal"):
             try:
                 engine.source.set_signal(signal)

@@ -9,6 +9,8 @@ from __future__ import annotations
 from dataclasses import dataclass, field, replace
 from typing import Any
 
+import numpy as np
+
 from rtanalyzer.errors import RtaError
 from rtanalyzer.live.engine import LiveEngine, live_nfft
 from rtanalyzer.sources.bench.knobs import BenchKnobs
@@ -17,6 +19,8 @@ from rtanalyzer.sources.drive import tones_of
 SOURCES = ("sim", "device", "file")
 RATES = (44_100, 48_000, 96_000, 192_000)
 MAX_AVERAGES = 64
+# Longest live window a closely spaced multitone may ask for (about 1.4 s at 48 kHz).
+MAX_LIVE_NFFT = 1 << 16
 
 
 @dataclass(frozen=True)
@@ -165,12 +169,46 @@ def _quadrature_settings(config: SessionConfig) -> dict[str, Any]:
     none for a sweep or when nothing says them (every tone found is measured)."""
     from rtanalyzer.generator.signals import Sweep
 
-    settings: dict[str, Any] = {"resolution": config.resolution_hz or config.rate_hz / live_nfft(config.rate_hz)}
+    settings: dict[str, Any] = {"resolution": config.resolution_hz or config.rate_hz / session_nfft(config, config.rate_hz)}
     if config.signal is not None and not isinstance(config.signal, Sweep):
         settings["tone"] = list(tones_of(config.signal)[0])
     elif config.signal is None and config.tones_hz:
         settings["tone"] = list(config.tones_hz)
     return settings
+
+
+def session_nfft(config: SessionConfig, rate_hz: float) -> int:
+    """The live window for this session: about 85 ms, or longer when the test signal's closest
+    components (a dense multitone's neighbours, or a wanted and an unwanted sideband near the
+    carrier) would otherwise fall within the plan's collision guard; a --resolution wins."""
+    from rtanalyzer.dsp.noise import MAIN_LOBE_BINS
+
+    nfft = live_nfft(rate_hz, config.resolution_hz)
+    gap = None if config.resolution_hz is not None else _closest_gap_hz(config)
+    if not gap:
+        return nfft
+    need = 2 * MAIN_LOBE_BINS * rate_hz / gap  # the plan's collision guard is 2·MAIN_LOBE_BINS bins
+    return int(min(MAX_LIVE_NFFT, max(nfft, 2 ** int(np.ceil(np.log2(need))))))
+
+
+def _closest_gap_hz(config: SessionConfig) -> float | None:
+    """Closest spacing of the components the measurement must tell apart (None: nothing to say)."""
+    from rtanalyzer.generator.signals import Sweep
+
+    if config.signal is None or isinstance(config.signal, Sweep):
+        return None
+    tones = sorted(tones_of(config.signal)[0])
+    places = list(tones)
+    carrier = config.carrier_hz
+    if carrier is None and config.source == "sim":
+        carrier = config.knobs.carrier_offset_hz
+    if carrier is not None and config.measurement_name == "sideband":
+        places = [carrier] + [carrier + f for f in tones] + [carrier - f for f in tones]
+        if not config.iq:
+            places = [abs(f) for f in places]
+    places.sort()
+    gaps = [b - a for a, b in zip(places, places[1:]) if b - a > 0]
+    return min(gaps) if gaps else None
 
 
 def build_engine(config: SessionConfig) -> LiveEngine:
@@ -185,7 +223,7 @@ def build_engine(config: SessionConfig) -> LiveEngine:
     iq = config.iq or getattr(measurement, "view", None) == "stereo"  # left + j·right
     source = build_source(config)  # not started yet: a bad calibration below costs nothing
     calibration = _calibration(config, name, iq, source.rate_hz)
-    nfft = live_nfft(source.rate_hz, config.resolution_hz)
+    nfft = session_nfft(config, source.rate_hz)
     return LiveEngine(source, measurement, settings, channel=config.channel, iq=iq,
                       update_hz=config.update_hz, nfft=nfft, averages=config.averages, calibration=calibration)
 

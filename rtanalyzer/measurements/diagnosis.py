@@ -203,7 +203,9 @@ def diagnose_sideband(points: Sequence[dict[str, Any]], network: Network | None 
     k = int(np.argmin(s))
     as_phase = float(np.degrees(np.sqrt(power[k])))
     as_amp = float(20.0 * np.log10(1.0 + np.sqrt(power[k])))
-    varies = float(s.max() - s.min())
+    # Variation only among measured points: a bound says how deep at least, not where it is.
+    measured = s[~np.array(bound, dtype=bool)]
+    varies = float(measured.max() - measured.min()) if measured.size >= 2 else 0.0
     advice = [
         f"worst {s[k]:.1f} dB at {f[k]:.0f} Hz: an error of {as_phase:.2f}° if it is all phase, or "
         f"{as_amp:.3f} dB if it is all amplitude",
@@ -246,8 +248,8 @@ def diagnose_sideband(points: Sequence[dict[str, Any]], network: Network | None 
                 "the amplitude's direction still needs the probe"
             )
     if varies > 6.0:
-        advice.append(f"the suppression varies by {varies:.1f} dB across the band: part of the error changes with "
-                      "frequency (the network's ripple), which no trim removes")
+        advice.append(f"the measured suppression varies by {varies:.1f} dB across the band: part of the error "
+                      "changes with frequency (the network's ripple), which no trim removes")
     advice.append(
         "probe: save this reading (analyze sideband ... --json > before.json), turn ONE trimmer a small step, "
         "save another (after.json), then run: rtanalyzer diagnose probe before.json after.json"
