@@ -373,3 +373,29 @@ def test_threads_deliver_readouts_and_stop_cleanly():
     assert all(b.t > a.t for a, b in zip(got, got[1:]))
     assert threading.active_count() == before, [t.name for t in threading.enumerate()]
     assert not any(t.name.startswith("rtanalyzer") for t in threading.enumerate())
+
+
+def test_dense_multitone_gets_a_window_long_enough_for_every_tone():
+    # 16 log-spaced tones over 300-3000 Hz: the closest pair is 50 Hz apart, closer than the
+    # plan's collision guard of 2·6 bins at the 85 ms window's 11.7 Hz bins (140.6 Hz), so the
+    # session lengthens the window (arithmetic: 12 bins within 50 Hz needs bins <= 4.2 Hz,
+    # nfft >= 11520 at 48 kHz, the next power of two 16384).
+    from rtanalyzer.generator.signals import Multitone
+    from rtanalyzer.live.session import SessionConfig, build_engine
+
+    tones = Multitone.spread(300.0, 3000.0, 16, -6.0)
+    # Driven well below saturation: a multitone's own intermodulation would otherwise sprinkle
+    # products next to the unwanted sidebands, which no window length separates.
+    knobs = BenchKnobs(drive_db=-30.0)
+    engine = build_engine(SessionConfig(source="sim", signal=tones, knobs=knobs, measurement="sideband"))
+    assert engine.nfft == 16384
+    source = engine.source
+    for _ in range(math.ceil(engine.nfft / source.block) + 2):
+        source.ring.write(source.render_block(source.block))
+    readout = engine.step()
+    assert readout.error is None, readout.error
+    got = {p["tone_hz"]: p for p in readout.result["points"]}
+    truth = {p["tone_hz"]: p for p in source.truth()["points"]}
+    assert sorted(got) == pytest.approx(sorted(truth))
+    for f, p in got.items():
+        assert p["sideband_suppression_db"] == pytest.approx(truth[f]["sideband_suppression_db"], abs=SB_TOL_DB)
