@@ -253,3 +253,46 @@ def test_the_view_opens_by_itself_for_a_drive_across_the_band_only():
     assert not opens_by_itself("sideband", Tone(1000.0, -6.0))  # one point: N still opens it
     assert opens_by_itself("quadrature", Tone(1000.0, -6.0))
     assert not opens_by_itself("twotone", EXCITER_TONES)
+
+
+def test_a_network_design_lies_over_the_points_and_informs_the_advice(qtbot, tmp_path):
+    # examples/bench.network holds the simulated bench's own RC pair, so its curve is the
+    # first-order all-pass phase (-2·atan(ωRC) per section, dsp.allpass) and the measured
+    # points sit on it shifted by the phase trimmer alone: the bench's Q path gets
+    # +phase_trim_deg (sources/bench/knobs.py), which lowers the measured error by that much.
+    from pathlib import Path
+
+    from rtanalyzer.gui.settings import WindowSettings
+
+    network_file = Path(__file__).resolve().parents[1] / "examples" / "bench.network"
+    window = open_window(qtbot, SessionConfig(source="sim", signal=Multitone(TONES, -6.0)))
+    view = choose_network(qtbot, window)
+    qtbot.waitUntil(lambda: len(view.points) == len(TONES), timeout=10_000)
+    assert view.set_design(str(network_file))
+    knobs = window.config.knobs
+    phase_plot = view.plots[0]
+    curve = phase_plot.design
+    for f in (400.0, 1000.0, 2800.0):
+        at = np.interp(np.log(f), np.log(curve.frequency_hz), curve.value)
+        assert at == pytest.approx(expected_error_deg(f, knobs) + knobs.phase_trim_deg, abs=0.02)
+        lo = np.interp(np.log(f), np.log(curve.frequency_hz), curve.low)
+        hi = np.interp(np.log(f), np.log(curve.frequency_hz), curve.high)
+        assert lo < hi  # 90 % of builds within 1 % R and 5 % C spread around the design
+    assert view.plots[1].design is None  # an all-pass pair says nothing of the amplitude ratio
+    assert view.plots[2].design is not None
+    assert "design bench.network" in view.design_label.text()
+    qtbot.waitUntil(lambda: "against the design" in view.advice_label.text(), timeout=5_000)
+    advice = view.advice_label.text()
+    turned = float(re.search(r"turns the phase by ([+\-]\d+\.\d+)°", advice).group(1))
+    assert turned == pytest.approx(-knobs.phase_trim_deg, abs=0.05)
+    # remembered for the next start
+    assert WindowSettings().get("band/design") == str(network_file)
+    # a file that is not a network says why; the design already shown stays
+    bad = tmp_path / "bad.network"
+    bad.write_text("X 1k 10n\n")
+    assert not view.set_design(str(bad))
+    assert "design not read" in view.design_label.text()
+    view.set_design(None)
+    assert all(p.design is None for p in view.plots) and view.design_label.text() == "no design"
+    qtbot.wait(400)
+    view.grab().save(str(tmp_path / "design.png"), "PNG")

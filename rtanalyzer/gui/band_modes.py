@@ -80,7 +80,8 @@ class BandMode:
         """The two large figures of the tone shown and the line under them."""
         raise NotImplementedError
 
-    def advice(self, inside: list[dict[str, Any]], band: tuple[float, float]) -> list[str]:
+    def advice(self, inside: list[dict[str, Any]], band: tuple[float, float], network=None) -> list[str]:
+        """Advice for the points in the band; ``network`` (a design) lets the diagnosis know its ripple."""
         raise NotImplementedError
 
 
@@ -118,12 +119,12 @@ class NetworkMode(BandMode):
                   f"{_signed(p['amplitude_ratio_db'], 2)} dB · suppression {p['predicted_suppression_db']:.1f} dB")
         return _plain(deg, 2), _plain(us_of(deg, f), 1), detail
 
-    def advice(self, inside, band):
+    def advice(self, inside, band, network=None):
         from rtanalyzer.errors import RtaError
         from rtanalyzer.measurements.diagnosis import diagnose_quadrature
 
         try:
-            d = diagnose_quadrature(inside, None, band)
+            d = diagnose_quadrature(inside, network, band)
         except (RtaError, ValueError, np.linalg.LinAlgError) as exc:
             return [f"no advice yet: {exc}"]
         lines = list(d.get("advice") or [])
@@ -183,12 +184,12 @@ class ExciterMode(BandMode):
         return (f"{bound}{s:.1f}", _plain(wanted, 1),
                 f"tone {tone:g} Hz · wanted at {p['wanted_hz']:.1f} Hz · {unwanted}")
 
-    def advice(self, inside, band):
+    def advice(self, inside, band, network=None):
         from rtanalyzer.errors import RtaError
         from rtanalyzer.measurements.diagnosis import diagnose_sideband
 
         try:
-            d = diagnose_sideband(inside, None, band)
+            d = diagnose_sideband(inside, network, band)
         except (RtaError, ValueError, np.linalg.LinAlgError) as exc:
             return [f"no advice yet: {exc}"]
         lines = list(d.get("advice") or [])

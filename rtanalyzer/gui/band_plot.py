@@ -19,6 +19,7 @@ import numpy as np
 from vispy import scene
 
 from rtanalyzer.gui import style
+from rtanalyzer.gui.band_design import Curve
 from rtanalyzer.gui.plots import MINUS, Plot, PlotCanvas, _line, _rgba
 from rtanalyzer.gui.ticks import frequency_ticks
 
@@ -26,6 +27,8 @@ X_RANGE_HZ = (100.0, 6000.0)  # the frequency axis, widened to take in every poi
 BAND_FILL = "#e3efe9"  # a pale tint of the wanted teal: the band judged
 POINT = style.TRACE
 WORST = style.UNWANTED
+DESIGN = style.INK_SOFT
+DESIGN_FILL = (0.42, 0.30, 0.58, 0.16)  # the IMD violet, faint: where 90 % of builds fall
 DOT_PX = 7
 BOUND_PX = 14
 RING_PX = 21
@@ -82,6 +85,13 @@ class BandPlot(Plot):
         self.dots = scene.Markers(parent=s)
         self.bounds = scene.Markers(parent=s)
         self.worst = scene.Markers(parent=s)
+        self.design_fill = scene.Mesh(parent=s, color=DESIGN_FILL)
+        self.design_fill.order = -4
+        # over the band's shading, translucent so the band still shows through
+        self.design_fill.set_gl_state(depth_test=False, blend=True)
+        self.design_line = _line(s, DESIGN, 1.5, connect="segments")
+        self.design: Curve | None = None
+        self.design_fill.visible = self.design_line.visible = False
         self.line.visible = self.dots.visible = self.bounds.visible = self.worst.visible = False
         self.configure(spec)
         self.set_range(x=np.log10(X_RANGE_HZ), y=(-1.0, 1.0))
@@ -94,6 +104,33 @@ class BandPlot(Plot):
         self.view.visible = shown
         self.set_legend(spec.legend if shown else "", WORST)
         self.host.chrome_changed()
+
+    def set_design(self, curve: Curve | None) -> None:
+        """Draw a design curve behind the points (dashed), with its builds' range shaded."""
+        self.design = curve
+        legend = f"- - - design · {self.spec.legend}" if curve is not None else self.spec.legend
+        self.set_legend(legend if self.shown else "", WORST)
+
+    def _draw_design(self) -> None:
+        curve = self.design
+        if curve is None:
+            self.design_fill.visible = self.design_line.visible = False
+            return
+        x = np.log10(curve.frequency_hz)
+        pts = np.column_stack([x, curve.value]).astype(np.float32)
+        n = len(pts) - len(pts) % 2  # every other segment of the fine grid: a dashed curve
+        self.design_line.set_data(pts[:n])
+        self.design_line.visible = True
+        if curve.low is None or curve.high is None:
+            self.design_fill.visible = False
+            return
+        verts = np.empty((2 * len(x), 2), np.float32)
+        verts[0::2] = np.column_stack([x, curve.low])
+        verts[1::2] = np.column_stack([x, curve.high])
+        k = np.arange(len(verts) - 2)
+        self.design_fill.set_data(vertices=verts, faces=np.column_stack([k, k + 1, k + 2]).astype(np.uint32),
+                                  color=DESIGN_FILL)
+        self.design_fill.visible = True
 
     def chrome(self):
         if not self.shown:
@@ -113,12 +150,11 @@ class BandPlot(Plot):
             is_bound.append(bound_key is not None and p.get(bound_key) is False)
         xs_all += [x for x, _ in pts]
         x0, x1 = min(xs_all) - 0.03, max(xs_all) + 0.03
+        values = self._design_values(band)  # the design's part inside the band counts for the range
         if pts:
             data = np.asarray(pts, np.float32)
             flags = np.asarray(is_bound, bool)
-            lo, hi = float(data[:, 1].min()), float(data[:, 1].max())
-            span = max(hi - lo, self.spec.pad)
-            y0, y1 = lo - 0.2 * span, hi + 0.25 * span
+            values = np.concatenate([values, data[:, 1]])
             # join the measured values only: a bound says nothing of the curve's shape
             joined = ~flags[:-1] & ~flags[1:]
             self.line.set_data(data, connect=np.append(joined, False))
@@ -129,8 +165,14 @@ class BandPlot(Plot):
             self.drawn = (int((~flags).sum()), int(flags.sum()))
         else:
             self.drawn = (0, 0)
-            y0, y1 = -self.spec.pad, self.spec.pad
             self.line.visible = self.dots.visible = self.bounds.visible = False
+        if values.size:
+            lo, hi = float(values.min()), float(values.max())
+            span = max(hi - lo, self.spec.pad)
+            y0, y1 = lo - 0.2 * span, hi + 0.25 * span
+        else:
+            y0, y1 = -self.spec.pad, self.spec.pad
+        self._draw_design()
         if worst is not None and worst.get(key) is not None and worst.get(fkey):
             at = np.asarray([[math.log10(worst[fkey]), worst[key]]], np.float32)
             self._markers(self.worst, at, size=RING_PX, face_color=(1, 1, 1, 0), edge_color=_rgba(WORST),
@@ -142,6 +184,16 @@ class BandPlot(Plot):
         self.band.width = max(b1 - b0, 1e-6)
         self.band.height = (y1 - y0) * 4.0
         self.set_range(x=(x0, x1), y=(y0, y1))
+
+    def _design_values(self, band: tuple[float, float]) -> np.ndarray:
+        curve = self.design
+        if curve is None:
+            return np.zeros(0)
+        inside = (curve.frequency_hz >= band[0]) & (curve.frequency_hz <= band[1])
+        parts = [curve.value[inside]]
+        if curve.low is not None and curve.high is not None:
+            parts += [curve.low[inside], curve.high[inside]]
+        return np.concatenate(parts)
 
     @staticmethod
     def _markers(visual: scene.Markers, data: np.ndarray, **style_kw) -> None:

@@ -23,6 +23,7 @@ the status bar) without the window knowing about it.
 
 from __future__ import annotations
 
+import os
 from typing import Any
 
 from PyQt6.QtCore import Qt, QTimer
@@ -40,6 +41,7 @@ from PyQt6.QtWidgets import (
 )
 
 from rtanalyzer.gui import style
+from rtanalyzer.gui.band_design import Design
 from rtanalyzer.gui.band_modes import MODES, BandMode
 from rtanalyzer.gui.band_plot import BandPlot
 from rtanalyzer.gui.plots import PlotCanvas
@@ -69,6 +71,8 @@ class BandView(QWidget):
         self.worst: dict[str, Any] | None = None
         self.advice: list[str] = []
         self.sweep_steps = 0
+        self.design: Design | None = None
+        self.on_design = None  # called with the design file's path (or None) when it changes
         self._dirty = False
         self._build()
         self.set_mode(measurement, force=True)
@@ -163,6 +167,21 @@ class BandView(QWidget):
         clear.clicked.connect(self.clear)
         bar.addSpacing(16)
         bar.addWidget(clear)
+        bar.addSpacing(16)
+        design = QPushButton("Design…")
+        design.setObjectName("design_button")
+        design.setToolTip("lay a network file (as for rtanalyzer network) over the points")
+        design.clicked.connect(self._choose_design)
+        bar.addWidget(design)
+        self.design_label = QLabel("no design")
+        self.design_label.setObjectName("design_label")
+        self.design_label.setStyleSheet(f"color: {style.INK_SOFT};")
+        bar.addWidget(self.design_label)
+        self.design_clear = QPushButton("No design")
+        self.design_clear.setObjectName("design_clear")
+        self.design_clear.clicked.connect(lambda: self.set_design(None))
+        self.design_clear.hide()
+        bar.addWidget(self.design_clear)
         bar.addStretch(1)
         self.progress = QProgressBar()
         self.progress.setObjectName("sweep_progress")
@@ -212,6 +231,7 @@ class BandView(QWidget):
             plot.configure(mode.plots[i] if shown else plot.spec, shown)
             self.canvas.weights[i] = 1.0 if shown else 0.0
         self.canvas.layout()
+        self._show_design()
         self.clear()
 
     # -- state ----------------------------------------------------------------------------------------
@@ -314,8 +334,49 @@ class BandView(QWidget):
         else:
             self.worst_text.setText(mode.worst_text(self.worst))
             self.worst_detail.setText(mode.worst_detail(self.worst, inside, band))
-        self.advice = mode.advice(inside, band) if scored else []
+        network = self.design.network if self.design is not None else None
+        self.advice = mode.advice(inside, band, network) if scored else []
+        if self.design is not None and mode.measurement == "quadrature":
+            self.advice += self.design.against(inside)
         self.advice_label.setText("\n".join(self.advice) if self.advice else "needs points inside the band")
+        self._dirty = True
+
+    # -- a network design over the points -----------------------------------------------------------
+
+    def set_design(self, path: str | None) -> bool:
+        """Lay the network file ``path`` over the points (None: take it away); False with the
+        reason shown when the file cannot be read."""
+        from rtanalyzer.errors import RtaError
+
+        if path is None:
+            self.design = None
+        else:
+            try:
+                self.design = Design.load(path)
+            except RtaError as exc:
+                self.design_label.setText(f"design not read: {exc}")
+                self.design_label.setStyleSheet(f"color: {style.WORSE};")
+                return False
+        self._show_design()
+        self._evaluate()
+        if self.on_design is not None:
+            self.on_design(path)
+        return True
+
+    def _choose_design(self) -> None:
+        from PyQt6.QtWidgets import QFileDialog
+
+        path, _ = QFileDialog.getOpenFileName(self, "Network design", "", "Network files (*.network);;All files (*)")
+        if path:
+            self.set_design(path)
+
+    def _show_design(self) -> None:
+        d = self.design
+        self.design_label.setText(d.legend if d is not None else "no design")
+        self.design_label.setStyleSheet(f"color: {style.INK_SOFT};")
+        self.design_clear.setVisible(d is not None)
+        for plot in self.plots:
+            plot.set_design(d.curve(plot.spec.key) if d is not None else None)
         self._dirty = True
 
     def shown_point(self) -> dict[str, Any] | None:
@@ -432,6 +493,13 @@ def attach(window) -> BandView:
             return  # the session before the newest one: its last readout may still be on its way
         if r.measurement in MODES or view.isVisible():
             view.show_readout(r)
+
+    settings = getattr(window, "settings", None)
+    if settings is not None:
+        saved = settings.get("band/design")
+        if isinstance(saved, str) and os.path.isfile(saved):
+            view.set_design(saved)
+        view.on_design = lambda path: settings.put("band/design", path)
 
     window.runner.started.connect(started)
     window.runner.readout.connect(readout)

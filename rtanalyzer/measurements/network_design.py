@@ -232,15 +232,7 @@ def monte_carlo(network: Network, band_hz=DEFAULT_BAND_HZ, tolerance_r_pct: floa
     if not np.isfinite(target_db):
         raise PlanError(f"--target-db {target_db}: must be a number of dB")
     f = band_grid(band_hz, 121)
-    rng = np.random.default_rng(seed)
-    omega = 2.0 * np.pi * f
-    diff = np.zeros((int(builds), f.size))
-    for sign, chain in ((1.0, network.chain_i), (-1.0, network.chain_q)):
-        for r, c in chain:
-            rr = r * (1.0 + tolerance_r_pct / 100.0 * rng.uniform(-1, 1, (int(builds), 1)))
-            cc = c * (1.0 + tolerance_c_pct / 100.0 * rng.uniform(-1, 1, (int(builds), 1)))
-            diff += sign * -2.0 * np.arctan(omega * rr * cc)
-    error = np.abs(np.degrees(diff)) - 90.0
+    error = build_errors_deg(network, f, tolerance_r_pct, tolerance_c_pct, int(builds), np.random.default_rng(seed))
     worst = image_rejection_db(1.0, np.radians(np.max(np.abs(error), axis=1)))
     ripple = 0.5 * (error.max(axis=1) - error.min(axis=1))
     trimmed = image_rejection_db(1.0, np.radians(ripple))
@@ -257,6 +249,38 @@ def monte_carlo(network: Network, band_hz=DEFAULT_BAND_HZ, tolerance_r_pct: floa
         "worst_suppression_percentiles_db": {str(p): round(float(np.percentile(worst, p)), 2) for p in pct},
         "trimmed_worst_suppression_percentiles_db": {str(p): round(float(np.percentile(trimmed, p)), 2) for p in pct},
     }
+
+
+def build_errors_deg(network: Network, frequency_hz: np.ndarray, tolerance_r_pct: float, tolerance_c_pct: float,
+                     builds: int, rng: np.random.Generator) -> np.ndarray:
+    """Phase error (|difference| - 90°) of ``builds`` random builds, shape (builds, frequencies).
+
+    Every resistor and capacitor is drawn uniformly within ±tolerance of its value, each on its
+    own; first-order all-pass phase -2·atan(ωRC) per section.
+    """
+    omega = 2.0 * np.pi * np.asarray(frequency_hz, dtype=np.float64)
+    diff = np.zeros((builds, omega.size))
+    for sign, chain in ((1.0, network.chain_i), (-1.0, network.chain_q)):
+        for r, c in chain:
+            rr = r * (1.0 + tolerance_r_pct / 100.0 * rng.uniform(-1, 1, (builds, 1)))
+            cc = c * (1.0 + tolerance_c_pct / 100.0 * rng.uniform(-1, 1, (builds, 1)))
+            diff += sign * -2.0 * np.arctan(omega * rr * cc)
+    return np.abs(np.degrees(diff)) - 90.0
+
+
+def error_spread_deg(network: Network, frequency_hz, tolerance_r_pct: float = 1.0, tolerance_c_pct: float = 5.0,
+                     builds: int = 1000, seed: int | None = 0, share: float = 0.9) -> tuple[np.ndarray, np.ndarray]:
+    """The range of phase error that the middle ``share`` of random builds falls in, per frequency.
+
+    Returns
+    -------
+    (low, high) : ndarray, ndarray
+        Percentiles (1 - share)/2 and (1 + share)/2 of the builds' phase error, degrees.
+    """
+    error = build_errors_deg(network, np.atleast_1d(frequency_hz), tolerance_r_pct, tolerance_c_pct, builds,
+                             np.random.default_rng(seed))
+    low, high = np.percentile(error, [50.0 * (1.0 - share), 50.0 * (1.0 + share)], axis=0)
+    return low, high
 
 
 def compare_measured(network: Network, points: list[dict[str, Any]]) -> dict[str, Any]:
