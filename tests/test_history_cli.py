@@ -251,6 +251,7 @@ def test_save_best_is_rate_limited_and_keeps_the_last_best(monkeypatch):
     saver = history_options.LiveSaver.__new__(history_options.LiveSaver)
     saver.args = SimpleNamespace(save=False, save_best=True)
     saver.store, saver.key, saver.larger_is_better = Store(), "worst_sideband_suppression_db", True
+    saver.measurement = "sideband"
     saver.last, saver.best_value, saver.pending, saver.last_saved_at, saver.saved_best = None, None, None, -1e9, []
     saver.saved_value, saver.min_gain_db = None, 0.05
     saver._snapshot = lambda readout, origin: SimpleNamespace(result=readout.result)

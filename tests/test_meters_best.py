@@ -157,3 +157,20 @@ def test_best_of_imd_is_the_most_negative():
     b.update({"worst_imd_db_pep": -31.0})
     assert (b.best, b.last, b.trend) == (-34.0, -31.0, "worse")
     assert b.as_dict() == {"figure": "worst_imd_db_pep", "value": -31.0, "best": -34.0, "trend": "worse"}
+
+
+def test_the_trimmed_figure_is_the_worst_inside_the_band_when_there_is_one():
+    # A tone outside the voice band (here 3400 Hz at 28 dB) must not decide a trim judged over
+    # 300-3000 Hz (common practice, no source); with no point in the band the overall worst counts.
+    from rtanalyzer.live.best import BestTracker, figure_value
+
+    inside = {"worst_sideband_suppression_db": 28.0,
+              "worst_in_band": {"tone_hz": 1000.0, "sideband_suppression_db": 35.0, "is_lower_bound": False}}
+    outside = {"worst_sideband_suppression_db": 28.0, "worst_in_band": None}
+    assert figure_value("sideband", inside) == 35.0
+    assert figure_value("sideband", outside) == 28.0
+    assert figure_value("quadrature", {"worst_predicted_suppression_db": 30.0,
+                                       "band": {"worst_predicted_suppression_db": 33.0}}) == 33.0
+    b = BestTracker.for_measurement("sideband")
+    b.update(inside)
+    assert b.as_dict()["value"] == 35.0

@@ -151,7 +151,8 @@ class LiveSaver:
         self.engine = engine
         self.config = config
         self.store = open_store(args) if (args.save or args.save_best) else None
-        figure = FIGURES.get(engine.measurement.name)
+        self.measurement = engine.measurement.name
+        figure = FIGURES.get(self.measurement)
         self.key, self.larger_is_better = (figure[0], figure[1]) if figure else (None, True)
         self.last = None
         self.best_value: float | None = None
@@ -203,7 +204,9 @@ class LiveSaver:
         self.last = readout
         if not self.args.save_best or self.key is None:
             return
-        value = readout.result.get(self.key)
+        from rtanalyzer.live.best import figure_value
+
+        value = figure_value(self.measurement, readout.result)
         if value is not None and (self.best_value is None or
                                   (value > self.best_value if self.larger_is_better else value < self.best_value)):
             self.best_value = value

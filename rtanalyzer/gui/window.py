@@ -620,18 +620,24 @@ class MainWindow(QMainWindow):
 
     def _sideband_tiles(self, t: float, r: dict) -> None:
         points = r.get("points") or []
-        worst = r.get("worst_sideband_suppression_db")
+        worst, bound = r.get("worst_sideband_suppression_db"), r.get("worst_is_lower_bound")
+        in_band, band = r.get("worst_in_band"), r.get("band_hz")
+        where_worst = f"worst of {len(points)}"
+        if len(points) > 1 and in_band and band:
+            # Several tones: the trim is judged inside the band (as the trend and best-so-far are).
+            worst, bound = in_band["sideband_suppression_db"], in_band["is_lower_bound"]
+            where_worst = f"worst in {band[0]:g}–{band[1]:g} Hz"
         detail = ""
-        if points and worst is not None:
-            p = min(points, key=lambda q: q.get("sideband_suppression_db") or math.inf)
+        p = min((q for q in points if q.get("sideband_suppression_db") == worst), key=lambda q: q["tone_hz"],
+                default=None)
+        if p is not None:
             # Short enough for two lines of the tile: the wanted level is labelled on the spectrum.
-            where = f"worst of {len(points)} at {p['tone_hz']:g} Hz" if len(points) > 1 else f"at {p['tone_hz']:g} Hz"
+            where = f"{where_worst} at {p['tone_hz']:g} Hz" if len(points) > 1 else f"at {p['tone_hz']:g} Hz"
             if p.get("unwanted_detected"):
                 detail = f"{where} · unwanted {signed(p['unwanted_dbfs'])} dBFS"
             else:
                 detail = f"{where} · unwanted under the noise"
-        self.tiles["sideband"].set_figure(t, worst, "≥" if r.get("worst_is_lower_bound") else "",
-                                          detail or "no wanted tone found")
+        self.tiles["sideband"].set_figure(t, worst, "≥" if bound else "", detail or "no wanted tone found")
         carrier = r.get("carrier_suppression_db")
         if r.get("carrier_detected"):
             detail = f"{signed(r['carrier_dbfs'])} dBFS at {r['carrier_hz']:.1f} Hz"

@@ -10,6 +10,23 @@ FIGURES = {
     "twotone": ("worst_imd_db_pep", False, "worst IMD"),
     "quadrature": ("worst_predicted_suppression_db", True, "suppression the 90° network allows"),
 }
+# Where a result keeps the same figure for the worst point inside the user's band: a trim is
+# judged there (a tone outside the voice band does not decide it).
+IN_BAND = {
+    "sideband": ("worst_in_band", "sideband_suppression_db"),
+    "quadrature": ("band", "worst_predicted_suppression_db"),
+}
+
+
+def figure_value(measurement: str, result: dict) -> float | None:
+    """The figure trimmed toward: the worst inside the band when the result has one, else overall."""
+    path = IN_BAND.get(measurement)
+    if path is not None:
+        inner = result.get(path[0])
+        if isinstance(inner, dict) and inner.get(path[1]) is not None:
+            return inner[path[1]]
+    key = FIGURES.get(measurement, (None,))[0]
+    return result.get(key) if key else None
 # Changes smaller than this are shown as steady (readout noise, not a trim).
 STEADY_DB = 0.05
 
@@ -22,15 +39,17 @@ class BestTracker:
     last: float | None = None
     trend: str = "steady"  # "better", "worse" or "steady"
 
+    measurement: str = ""
+
     @classmethod
     def for_measurement(cls, name: str) -> BestTracker | None:
         if name not in FIGURES:
             return None
         key, larger, _ = FIGURES[name]
-        return cls(key, larger)
+        return cls(key, larger, measurement=name)
 
     def update(self, result: dict) -> None:
-        value = result.get(self.key)
+        value = figure_value(self.measurement, result) if self.measurement else result.get(self.key)
         if value is None:
             return
         if self.last is not None:
