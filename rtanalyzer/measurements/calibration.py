@@ -172,6 +172,12 @@ def parse_profile(text: str, where: str = "profile") -> Profile:
         raise CaptureError(f"{where}: a channels profile needs gain_db, phase_deg and delay_s")
     if kind == "passband" and len(points) < 2:
         raise CaptureError(f"{where}: a passband profile needs at least two 'point = HZ DB' lines")
+    freqs = sorted(f for f, _ in points)
+    if any(not (np.isfinite(f) and f > 0) for f in freqs) or any(not np.isfinite(g) for _, g in points):
+        raise CaptureError(f"{where}: every 'point' needs a positive frequency and a finite gain")
+    if any(b == a for a, b in zip(freqs, freqs[1:])):
+        twice = next(a for a, b in zip(freqs, freqs[1:]) if a == b)
+        raise CaptureError(f"{where}: two 'point' lines give {twice:g} Hz; one gain per frequency")
     if kind == "level" and not values:
         raise CaptureError(f"{where}: a level profile needs channel_N_full_scale_vrms for at least one channel")
     try:
@@ -461,13 +467,21 @@ class CalibrationSet:
 
 
 def passband_gain_db(profile: Profile, frequency_hz: float) -> tuple[float, bool]:
-    """Gain of the receiver at a frequency (linear in log frequency between points), and whether
-    the frequency lies inside the profile's points (outside, the nearest end's gain is held)."""
+    """Gain of the receiver at a frequency, and whether the frequency lies inside the profile's
+    points (outside, the nearest end's gain is held).
+
+    Between points the gain in dB is a monotone cubic (PCHIP, Fritsch & Carlson 1980) in log
+    frequency: a receiver's skirts are smooth curves there, which straight lines between sparse
+    points cut short by tenths of a dB, and PCHIP never overshoots the points.
+    """
+    from scipy.interpolate import PchipInterpolator
+
     f = abs(float(frequency_hz))
     fs = np.array([p[0] for p in profile.points])
     gs = np.array([p[1] for p in profile.points])
     inside = bool(fs[0] <= f <= fs[-1])
-    return float(np.interp(np.log(max(f, 1e-3)), np.log(fs), gs)), inside
+    x = float(np.clip(np.log(max(f, 1e-3)), np.log(fs[0]), np.log(fs[-1])))
+    return float(PchipInterpolator(np.log(fs), gs)(x)), inside
 
 
 def _gain_reader(profile: Profile) -> tuple[Callable[[float | None], float], list[float]]:
