@@ -61,6 +61,9 @@ def sideband(r: dict[str, Any]) -> list[str]:
         figure_text = (f"at least {figure:.1f} dB at {in_band['tone_hz']:g} Hz (unwanted not detected)"
                        if in_band["is_lower_bound"] else f"{figure:.1f} dB at {in_band['tone_hz']:g} Hz")
         lines.append(f"worst in {lo:g}–{hi:g} Hz: {figure_text}")
+    if r.get("sweep_steps"):
+        lines.append(f"stepped sweep: {r['sweep_steps']} steps, each measured over its own settled part "
+                     "(carrier from the loudest step)")
     lines.append(f"wanted sideband {r['wanted_side']} the carrier" + (
         f"; receiver tuned {r['tuning_offset_hz']:+.1f} Hz off" if r.get("tuning_offset_hz") is not None else ""
     ))

@@ -101,6 +101,7 @@ class SidebandResult:
     signal_label: str
     warnings: tuple[str, ...] = field(default=())
     band_hz: tuple[float, float] = DEFAULT_BAND_HZ
+    sweep_steps: int = 0  # steps of a stepped sweep measured one by one (0: a steady capture)
 
     @property
     def strongest_wanted_dbfs(self) -> float | None:
@@ -152,6 +153,7 @@ class SidebandResult:
             "noise_floor_dbfs": rounded(self.noise_floor_dbfs),
             "analysis_bandwidth_hz": rounded(self.analysis_bandwidth_hz, 4),
             "clipped": self.clipped,
+            "sweep_steps": self.sweep_steps,
             "warnings": list(self.warnings),
         }
 
@@ -168,9 +170,32 @@ class SidebandMeasurement:
         Parameter("band", float, "audio band whose worst point is reported", DEFAULT_BAND_HZ, nargs=2, unit="Hz"),
     )
 
-    def measure(self, signal: Signal, settings: Mapping[str, Any], spectrum: Spectrum | None = None) -> SidebandResult:
-        """Measure ``signal``; a live engine may pass its running ``spectrum`` of the same signal."""
+    def measure(self, signal: Signal, settings: Mapping[str, Any], spectrum: Spectrum | None = None,
+                progress=None) -> SidebandResult:
+        """Measure ``signal``; a live engine may pass its running ``spectrum`` of the same signal.
+
+        A recorded stepped sweep (its strongest component does not play throughout) is measured
+        step by step (``sideband_sweep``), ``progress(done, total)`` called after each step.
+        """
         s = settings_with_defaults(self, settings)
+        check_band(s["band"])
+        if spectrum is None and _is_sweep(signal):
+            from rtanalyzer.measurements.sideband_sweep import measure_sweep
+
+            result = measure_sweep(self._measure_steady, signal, s, progress)
+            return self._band_note(result)
+        return self._band_note(self._measure_steady(signal, s, spectrum))
+
+    @staticmethod
+    def _band_note(result: SidebandResult) -> SidebandResult:
+        band = result.band_hz
+        if worst_in_band(result.points_json(), band) is None:
+            note = f"no tone with a suppression figure lies inside the band {band[0]:g}-{band[1]:g} Hz (--band): no in-band worst"
+            result = replace(result, warnings=(*result.warnings, note))
+        return result
+
+    def _measure_steady(self, signal: Signal, s: Mapping[str, Any], spectrum: Spectrum | None = None) -> SidebandResult:
+        """Every tone playing throughout ``signal`` (settings ``s`` with defaults applied)."""
         band = check_band(s["band"])
         request = PlanRequest(tuple(float(t) for t in s["tone"]), s["carrier"], s["wanted"])
         offline = spectrum is None
@@ -220,7 +245,24 @@ class SidebandMeasurement:
             warnings=tuple(warnings),
             band_hz=band,
         )
-        if worst_in_band(result.points_json(), band) is None:
-            note = f"no tone with a suppression figure lies inside the band {band[0]:g}-{band[1]:g} Hz (--band): no in-band worst"
-            result = replace(result, warnings=(*result.warnings, note))
         return result
+
+
+def _is_sweep(signal: Signal) -> bool:
+    """Does the capture's strongest component stop and start (a stepped sweep), rather than play
+    throughout as a tone or multitone does?"""
+    from rtanalyzer.dsp.noise import MAIN_LOBE_BINS
+    from rtanalyzer.dsp.quadrature import is_steady
+    from rtanalyzer.dsp.tones import local_peaks, refine_peak
+
+    x = signal.samples
+    if not np.any(x):
+        return False  # the steady path says "digital silence"
+    spectrum = spectrum_of(signal, 10.0)
+    low = 2 * MAIN_LOBE_BINS * spectrum.bin_hz
+    peaks = local_peaks(spectrum, low, spectrum.nyquist_hz - low)
+    if not peaks.size:
+        return False
+    f = abs(refine_peak(spectrum, int(peaks[0])).frequency_hz)
+    left, right = (x.real, x.imag) if signal.is_complex else (x, x)
+    return not is_steady(left, right, signal.rate_hz, f)
