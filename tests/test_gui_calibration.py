@@ -49,6 +49,18 @@ def test_choosing_a_passband_profile_corrects_the_live_figure_and_is_remembered(
     label = window.statusBar().findChild(type(window.rate_label), "calibration_status")
     assert label.text() == "calibration: rx"
     assert window.last_readout.result["calibration"] == ["rx"]
+    # The markers stay on the drawn (uncorrected) trace; the labels carry the corrected figures.
+    import numpy as np
+
+    qtbot.waitUntil(lambda: window.last_frame is not None and window.last_frame.readout.result
+                    and window.last_frame.readout.result.get("calibration") == ["rx"], timeout=5_000)
+    frame = window.last_frame
+    point = frame.readout.result["points"][0]
+    unwanted = next(m for m in frame.markers if m.role == "unwanted")
+    near = np.abs(frame.frequencies_hz - unwanted.frequency_hz) < 30.0
+    assert unwanted.level_dbfs == pytest.approx(float(frame.level_dbfs[near].max()), abs=0.01)
+    assert f"{point['unwanted_dbfs']:.1f}".replace("-", "\u2212") in unwanted.label
+    assert abs(unwanted.level_dbfs - point["unwanted_dbfs"]) > 0.5  # the correction is visible in the label
     window.close()
     from rtanalyzer.gui.settings import WindowSettings
 

@@ -10,7 +10,7 @@ the newest frame and draws it.
 from __future__ import annotations
 
 import threading
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 import numpy as np
@@ -130,6 +130,26 @@ def _twotone_markers(result: dict[str, Any]) -> tuple[Marker, ...]:
     return tuple(markers)
 
 
+def _passband_corrected(result: dict[str, Any]) -> bool:
+    """Were the result's levels moved by a passband calibration (so they sit off the raw trace)?"""
+    rows = list(result.get("points") or []) + list(result.get("imd") or [])
+    return any(k.endswith("passband_correction_db") for row in rows if isinstance(row, dict) for k in row)
+
+
+def _on_trace(frame, markers: tuple[Marker, ...]) -> tuple[Marker, ...]:
+    """Detected markers moved onto the drawn (uncorrected) spectrum's peak near them; their labels
+    keep the corrected figures, which is what the calibration is for."""
+    freqs, level = frame.frequencies_hz, frame.level_dbfs
+    half = 3.0 * float(np.median(np.diff(freqs))) if len(freqs) > 1 else 0.0
+    out = []
+    for m in markers:
+        near = np.abs(freqs - m.frequency_hz) <= half
+        if m.detected and near.any():
+            m = replace(m, level_dbfs=float(level[near].max()))
+        out.append(m)
+    return tuple(out)
+
+
 def pattern_tones(result: dict[str, Any] | None) -> tuple[float, ...]:
     """The fundamental tones whose envelope is the 'drive': the two tones, or the wanted ones."""
     if not result:
@@ -202,6 +222,8 @@ class DisplayPrep:
             self._spectrum(frame, spectrum)
         if result is not None:
             frame.markers = markers_of(result)
+            if frame.level_dbfs is not None and _passband_corrected(result):
+                frame.markers = _on_trace(frame, frame.markers)
             frame.noise_floor_dbfs = result.get("noise_floor_dbfs")
             frame.analysis_bandwidth_hz = result.get("analysis_bandwidth_hz")
         if readout.samples is not None and len(readout.samples) >= 64:
