@@ -306,6 +306,69 @@ def test_start_does_not_undo_a_pending_change():
     assert tone_level_dbfs(x[:480], 2000.0) == pytest.approx(-6.0, abs=1e-6)
 
 
+def test_signal_start_and_steady_from_date_each_fade():
+    # Where the signal began and from which sample its gain is 1, checked against the envelope of
+    # an unimpaired quadrature pair (|I + jQ| = A * gain, cos^2 + sin^2 = 1).
+    first, second = Quadrature(1000.0, -6.0), Quadrature(1500.0, -6.0)
+    gen = Generator(first, RATE, channels=2)
+    r = gen.ramp_frames
+    assert (gen.signal_start, gen.steady_from) == (0, r)
+    e = envelope(gen, 2000) / amp(-6.0)
+    assert e[r] == pytest.approx(1.0, abs=1e-12) and e[r - 1] < 1.0 - 1e-6
+    assert gen.steady_from == r  # reached inside the block: still the exact sample
+    gen.change(second)  # at sample 2000: fade out, then in
+    assert gen.steady_from is None and gen.signal_start == 0
+    e = envelope(gen, 3000) / amp(-6.0)
+    assert gen.signal == second and gen.signal_start == 2000 + r
+    assert gen.steady_from == 2000 + 2 * r
+    assert e[r] == 0.0 and e[2 * r] == pytest.approx(1.0, abs=1e-12) and e[2 * r - 1] < 1.0 - 1e-6
+    gen.mute()
+    assert gen.steady_from is None
+    gen.render(100)
+    gen.unmute()
+    assert gen.steady_from == 5100 + r
+    gen.stop()
+    assert gen.steady_from is None
+    assert gen.sweep_plan is None
+
+
+def test_start_right_after_stop_keeps_playing():
+    # Stop and start with no sample rendered between: the fade out never began, so the output
+    # stays at full level (it used to keep falling to silence, and stay there).
+    gen = Generator(Tone(1000.0, -6.0), RATE)
+    gen.render(2000)
+    gen.stop()
+    gen.start()
+    x = gen.render(2000)[:, 0]
+    assert not gen.silent and gen.steady_from == 480
+    assert tone_level_dbfs(x[-480:], 1000.0) == pytest.approx(-6.0, abs=1e-9)
+
+
+def test_prepare_then_change_equals_change():
+    signal = Multitone.spread(300.0, 3000.0, 6, -6.0)
+    a, b = Generator(Tone(1000.0, -6.0), RATE), Generator(Tone(1000.0, -6.0), RATE)
+    a.render(1000), b.render(1000)
+    prepared = b.prepare(signal)
+    assert prepared.signal is signal and b.signal == Tone(1000.0, -6.0)  # preparing changes nothing
+    a.change(signal)
+    b.change(prepared)
+    np.testing.assert_array_equal(a.render(3000), b.render(3000))
+    with pytest.raises(GeneratorError) as err:
+        Generator(Tone(1000.0, -6.0), 44100).change(prepared)
+    assert str(err.value) == "signal prepared for 48000 Hz, 1 ch; this generator runs at 44100 Hz, 1 ch"
+    with pytest.raises(GeneratorError, match="Quadrature needs channels = 2"):
+        a.prepare(Quadrature(1000.0, -6.0))
+
+
+def test_sweep_plan_starts_with_the_sweep():
+    gen = Generator(Tone(1000.0, -6.0), RATE)
+    gen.render(1000)
+    gen.change(Sweep((500.0, 1500.0), -6.0, 0.01, 0.002))
+    gen.render(2000)
+    assert gen.sweep_plan.start_sample == gen.signal_start == 1480
+    assert gen.step_at(1480 + 480) == gen.sweep_plan.step_at(1480 + 480) == (1, 1500.0, False)
+
+
 def test_blocks_join_exactly():
     # Phase continuity: the same samples whatever the block boundaries (to rounding, 1e-12).
     for signal in (TwoTone(700.0, 1900.0, -6.0), Sweep((500.0, 1500.0), -6.0, 0.01, 0.002),
@@ -539,3 +602,18 @@ def test_device_plays_and_maps_portaudio_errors(monkeypatch, capsys):
     with pytest.raises(OutputDeviceError, match=r"cannot play 48000 Hz 1-channel audio: Invalid sample rate") as info:
         command.run(_play_args("2"))
     assert "\n" not in str(info.value)
+
+
+def test_a_fall_taken_back_before_it_begins_holds_full_gain():
+    # At full gain, fall() then rise() with no sample between: the gain stays 1 (arithmetic of the
+    # raised-cosine ramp, 0.5 - 0.5·cos(π·p/R) at p = R).
+    from rtanalyzer.generator.envelope import RaisedCosineRamp
+
+    ramp = RaisedCosineRamp(8, block=32)
+    ramp.rise_from_silence()
+    ramp.fill(np.empty(20))
+    ramp.fall()
+    ramp.rise()
+    gain = np.empty(10)
+    ramp.fill(gain)
+    assert np.all(gain == 1.0)

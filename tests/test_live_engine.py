@@ -399,3 +399,23 @@ def test_dense_multitone_gets_a_window_long_enough_for_every_tone():
     assert sorted(got) == pytest.approx(sorted(truth))
     for f, p in got.items():
         assert p["sideband_suppression_db"] == pytest.approx(truth[f]["sideband_suppression_db"], abs=SB_TOL_DB)
+
+
+def test_a_window_across_a_signal_change_is_not_measured():
+    # The bench switches from 1000 Hz to 1500 Hz at a block boundary: a window holding frames of
+    # both is "settling" (its spectrum mixes two drives), the first window wholly after the change
+    # reports the new tone only, and an averaging engine starts its average afresh there.
+    source, engine = _sideband(averages=4)
+    _feed(source, _window_blocks(engine) + 2)
+    assert engine.step().result["points"][0]["tone_hz"] == 1000.0
+    source.set_signal(Tone(1500.0, -6.0))
+    _feed(source, 1)
+    straddling = engine.step()
+    assert straddling.result is None and straddling.error == "settling"
+    _feed(source, _window_blocks(engine))
+    after = engine.step()
+    assert after.error is None and [p["tone_hz"] for p in after.result["points"]] == [1500.0]
+    assert after.spectrum.segments == 1  # the average holds the new tone's spectrum only
+    truth = source.truth()
+    assert after.result["worst_sideband_suppression_db"] == pytest.approx(truth["worst_sideband_suppression_db"],
+                                                                         abs=SB_TOL_DB)

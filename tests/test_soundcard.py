@@ -16,10 +16,14 @@ from types import SimpleNamespace
 
 import numpy as np
 import pytest
+import scipy.signal
 
-from rtanalyzer.generator import Generator, Sweep, Tone
+from rtanalyzer.generator import Generator, GeneratorError, Quadrature, Sweep, Tone, TwoTone
+from rtanalyzer.live.engine import LiveEngine
+from rtanalyzer.measurements.twotone import TwoToneMeasurement
 from rtanalyzer.sources import soundcard, soundcard_devices
 from rtanalyzer.sources.live import Drive
+from rtanalyzer.sources.ring import FrameRing
 from rtanalyzer.sources.soundcard import LEAD_BLOCKS, LOST_STATE, SoundCardSource
 from rtanalyzer.sources.soundcard_devices import MISSING_PORTAUDIO, SoundCardError, find_device
 
@@ -273,22 +277,44 @@ def test_an_empty_output_ring_plays_zeros_and_counts_an_underflow(fake_sd, runni
         gen.release.set()
 
 
-def test_mute_plays_zeros_at_once_and_time_runs_on(fake_sd, running):
+@pytest.mark.parametrize("applied", [True, False], ids=["mute-applied", "mute-and-unmute-together"])
+def test_mute_plays_zeros_at_once_and_unmute_fades_in_on_time(fake_sd, running, applied):
     factory = Factory()
     gen = Generator(Tone(1000.0, -6.0), RATE)
     source = start(SoundCardSource("pulse", "pulse", RATE, 1, BLOCK, gen, stream_factory=factory), running)
     out = factory.latest("output")
-    reference = Generator(Tone(1000.0, -6.0), RATE).render(3 * BLOCK).astype(np.float32)
-    first = out.pump()
+    blocks = [pump_out(source, out)]
     source.mute()
     assert source.muted
-    assert np.all(out.pump() == 0.0)
+    blocks.append(pump_out(source, out))
+    assert np.all(blocks[-1] == 0.0)  # at once, though the ring held tone rendered before the mute
+    if applied:  # the producer muted the generator before the unmute (else both come at once)
+        blocks.append(pump_out(source, out))
+        assert wait_for(lambda: gen.silent)
     source.unmute()
-    assert wait_for(lambda: source._out_ring.written - source._played >= BLOCK)
-    third = out.pump()
-    np.testing.assert_allclose(first, reference[:BLOCK], rtol=0, atol=1e-6)
-    np.testing.assert_allclose(third, reference[2 * BLOCK:], rtol=0, atol=1e-6)  # skipped, not delayed
+    for _ in range(3 * LEAD_BLOCKS):
+        blocks.append(pump_out(source, out))
+    x = np.concatenate(blocks)[:, 0]
+    back = source._sound_from  # the producer's unmute: the first frame of the fade-in
+    assert BLOCK < back <= len(blocks) * BLOCK
+    assert np.all(x[BLOCK:back] == 0.0)
+    # From there on, what a generator muted and unmuted at that sample plays: a fade-in from 0,
+    # with the oscillator's time run on (the tone is where it would have been, not delayed).
+    reference = Generator(Tone(1000.0, -6.0), RATE)
+    head = reference.render(back)
+    reference.mute()
+    reference.unmute()
+    tail = reference.render(len(x) - back)[:, 0].astype(np.float32)
+    np.testing.assert_allclose(x[:BLOCK], head[:BLOCK, 0], rtol=0, atol=1e-6)
+    np.testing.assert_allclose(x[back:], tail, rtol=0, atol=1e-6)
+    assert x[back] == 0.0 and abs(x[back + gen.ramp_frames:]).max() > 0.49
     assert source.counters.output_underflows == 0
+
+
+def pump_out(source, out):
+    """One output callback, once the producer has the block ready."""
+    assert wait_for(lambda: source._out_ring.written - source._played >= BLOCK)
+    return out.pump()
 
 
 @pytest.fixture
@@ -334,6 +360,264 @@ def test_input_only_has_no_drive(fake_sd, running):
     factory.latest("input").pump()
     assert source.drive_at(10_000) is None
     assert source.output_channels == 0
+
+
+# -- live changes, handed to the producer thread ----------------------------------------------------
+
+LAG = 1440  # FakeStream latencies: captured frame F is played frame F - LAG (0.01 s + 0.02 s at 48 kHz)
+
+
+class Loop:
+    """Pumps output then input, the clock moving one block each time; the input hears the output
+    LAG frames late, so captured frame F holds played frame F - LAG, as drive_at assumes."""
+
+    def __init__(self, source, factory, clock):
+        self.source, self.clock = source, clock
+        self.out, self.inp = factory.latest("output"), factory.latest("input")
+        self.played = np.zeros((LAG, self.out.channels), dtype=np.float32)
+
+    def run(self, blocks):
+        for _ in range(blocks):
+            self.clock[0] += BLOCK / RATE
+            self.played = np.concatenate([self.played, pump_out(self.source, self.out)])
+            k = self.source.ring.written
+            self.inp.pump(self.played[k:k + BLOCK, : self.inp.channels].copy())
+
+    @property
+    def output(self):
+        return self.played[LAG:, 0].astype(np.float64)
+
+
+def switch_points(source, old, new):
+    """(c, i): renderer samples where the producer began the change and where the new signal began."""
+    segments = [(start, signal, full) for start, signal, _, full in source._timeline]
+    i = next(start for start, signal, _ in segments if signal == new)
+    c = max(start for start, signal, full in segments if signal == old and not full and start < i)
+    return c, i
+
+
+def test_set_signal_fades_over_to_the_new_tone_without_a_click(fake_sd, running, clock):
+    factory = Factory()
+    old, new = Tone(1000.0, -6.0), Tone(3000.0, -6.0)
+    gen = Generator(old, RATE)  # 10 ms fades: R = 480 frames
+    source = start(SoundCardSource("pulse", "pulse", RATE, 1, BLOCK, gen, stream_factory=factory), running)
+    loop = Loop(source, factory, clock)
+    loop.run(8)
+    source.set_signal(new)  # from this thread while the producer renders: the GUI's place
+    loop.run(48)
+    x = loop.output
+    c, i = switch_points(source, old, new)
+    r = gen.ramp_frames
+    # The producer applies the change at the next block it renders: past what was played, at
+    # most LEAD_BLOCKS blocks ahead; the fade out from full gain lasts R samples.
+    assert 8 * BLOCK <= c <= (8 + LEAD_BLOCKS) * BLOCK and c % BLOCK == 0
+    assert i - c == r and gen.signal == new
+    # Exactly what one generator makes when changed at sample c (its ramps, its phases).
+    reference = Generator(old, RATE)
+    expected = np.concatenate([reference.render(c), (reference.change(new), reference.render(len(x) - c))[1]])
+    np.testing.assert_allclose(x, expected[:, 0], rtol=0, atol=1e-6)  # float32 output
+    # Independent checks. The tone after the fade-in is 3000 Hz, before the change 1000 Hz: peak
+    # of a Hann periodogram zero-padded 8x (scipy.signal.periodogram as the reference), within
+    # 1 Hz; the old tone is gone (> 100 dB down: Hann sidelobes 2000 Hz off are far lower).
+    for part, f, other in ((x[i + r:], 3000.0, 1000.0), (x[:c], 1000.0, 3000.0)):
+        freqs, power = scipy.signal.periodogram(part, RATE, window="hann", nfft=8 * len(part))
+        assert abs(freqs[np.argmax(power)] - f) < 1.0
+        assert power[np.argmin(abs(freqs - other))] < 1e-10 * power.max()
+    # No click: a step between samples never exceeds the steepest slope of A*g(n)*cos(wn + p),
+    # |d/dn| <= A*(w + max|g'|) with w = 2*pi*f/fs and max|g'| = pi/(2R) for the raised-cosine
+    # gain 0.5 - 0.5*cos(pi*n/R) (calculus; mean value theorem for the discrete step).
+    a = 10 ** (-6 / 20)
+    bound = a * (2 * np.pi * 3000.0 / RATE + np.pi / (2 * r)) + 1e-6
+    assert np.abs(np.diff(x)).max() <= bound
+    assert x[i - 1] == 0.0 and x[i] == 0.0  # out, then in: the two fades meet at silence
+    assert np.abs(x).max() <= a + 1e-6
+
+
+def test_drive_at_reports_the_old_tones_before_the_switch_and_the_new_after(fake_sd, running, clock):
+    factory = Factory()
+    old, new = TwoTone(700.0, 1900.0, -6.0), TwoTone(1000.0, 2500.0, -6.0)
+    gen = Generator(old, RATE)
+    source = start(SoundCardSource("pulse", "pulse", RATE, 1, BLOCK, gen, stream_factory=factory), running)
+    engine = LiveEngine(source, TwoToneMeasurement(), {"tones": [700.0, 1900.0]})  # stepped by hand
+    loop = Loop(source, factory, clock)
+    loop.run(40)
+    before = engine.step()
+    source.set_signal(new)
+    loop.run(40)
+    after = engine.step()
+    c, i = switch_points(source, old, new)
+    r = gen.ramp_frames
+    old_tones, new_tones = (700.0, 1900.0), (1000.0, 2500.0)
+    # Captured frame F played renderer sample F - LAG; a few frames off each edge (int rounding).
+    assert source.drive_at(LAG + c - 5) == Drive(old_tones, True, None)
+    assert source.drive_at(LAG + c + 5) == Drive(old_tones, False, None)  # fading out
+    assert source.drive_at(LAG + i - 5) == Drive(old_tones, False, None)
+    assert source.drive_at(LAG + i + 5) == Drive(new_tones, False, None)  # fading in
+    assert source.drive_at(LAG + i + r + 5) == Drive(new_tones, True, None)
+    assert source.drive_at(source.ring.written - 1) == Drive(new_tones, True, None)
+    # The readouts measure the tones that were in the window: the engine takes them from drive_at.
+    assert before.frame - engine.nfft > LAG + gen.ramp_frames and before.frame < LAG + c
+    assert before.result["tone_hz"] == pytest.approx(old_tones, abs=1.0), before.error
+    assert after.frame - engine.nfft > LAG + i + r
+    assert after.result["tone_hz"] == pytest.approx(new_tones, abs=1.0), after.error
+
+
+def test_a_sweep_set_live_is_dated_from_its_own_start(fake_sd, running, clock):
+    factory = Factory()
+    gen = Generator(Tone(1000.0, -6.0), RATE)
+    source = start(SoundCardSource("pulse", "pulse", RATE, 1, BLOCK, gen, stream_factory=factory), running)
+    loop = Loop(source, factory, clock)
+    loop.run(4)
+    sweep = Sweep((500.0, 1500.0), -6.0, dwell_s=0.05, settle_s=0.01)
+    source.set_signal(sweep)
+    loop.run(40)
+    _, i = switch_points(source, Tone(1000.0, -6.0), sweep)
+    dwell = int(0.05 * RATE)
+    assert gen.sweep_plan.start_sample == i
+    assert source.drive_at(LAG + i + dwell + 5) == Drive((1500.0,), False, 1)  # step 1 settling
+    assert source.drive_at(LAG + i + dwell + int(0.02 * RATE)) == Drive((1500.0,), True, 1)
+    assert source.drive_at(LAG + i - 5).tones_hz == (1000.0,)
+
+
+def test_mute_is_dated_for_drive_at(fake_sd, running, clock):
+    factory = Factory()
+    gen = Generator(Tone(1000.0, -6.0), RATE)
+    source = start(SoundCardSource("pulse", "pulse", RATE, 1, BLOCK, gen, stream_factory=factory), running)
+    loop = Loop(source, factory, clock)
+    loop.run(8)
+    source.mute()
+    loop.run(8)
+    source.unmute()
+    loop.run(16)
+    back = source._sound_from
+    starts = [(start, full) for start, _, _, full in source._timeline]
+    muted_at = starts[-3][0]
+    assert starts[-3:] == [(muted_at, False), (back, False), (back + gen.ramp_frames, True)]
+    assert source.drive_at(LAG + muted_at - 5).settled and not source.drive_at(LAG + muted_at + 5).settled
+    assert not source.drive_at(LAG + back + 5).settled  # fading in
+    assert source.drive_at(LAG + back + gen.ramp_frames + 5) == Drive((1000.0,), True, None)
+
+
+def test_set_playing_fades_out_and_in_and_keeps_a_change_made_during_the_fade(fake_sd, running):
+    factory = Factory()
+    old, new = Tone(1000.0, -6.0), Tone(2000.0, -6.0)
+    gen = Generator(old, RATE, ramp_s=0.1)  # 4800-frame fades: many blocks long
+    source = start(SoundCardSource("pulse", "pulse", RATE, 1, BLOCK, gen, stream_factory=factory), running)
+    out = factory.latest("output")
+    blocks = [pump_out(source, out) for _ in range(24)]  # past the fade-in
+    source.set_signal(new)
+    blocks += [pump_out(source, out) for _ in range(2)]
+    assert wait_for(lambda: source._applied_signal is not None)  # the change is fading the old tone out...
+    source.set_playing(False)  # ...when the output is faded out: Generator.stop would drop it
+    blocks += [pump_out(source, out) for _ in range(40)]
+    assert not source.playing and np.all(blocks[-1] == 0.0) and gen.silent
+    source.set_playing(True)
+    blocks += [pump_out(source, out) for _ in range(40)]
+    assert gen.signal == new
+    x = np.concatenate(blocks)[:, 0]
+    tail = x[-8192:]
+    freqs, power = scipy.signal.periodogram(tail, RATE, window="hann", nfft=8 * len(tail))
+    assert abs(freqs[np.argmax(power)] - 2000.0) < 1.0
+    a = 10 ** (-6 / 20)
+    assert np.abs(np.diff(x)).max() <= a * (2 * np.pi * 2000.0 / RATE + np.pi / (2 * gen.ramp_frames)) + 1e-6
+    assert source.counters.output_underflows == 0
+
+
+def test_a_change_of_output_channels_is_refused_in_one_line(fake_sd, running):
+    factory = Factory()
+    gen = Generator(Tone(1000.0, -6.0), RATE)
+    source = start(SoundCardSource("pulse", "pulse", RATE, 1, BLOCK, gen, stream_factory=factory), running)
+    with pytest.raises(SoundCardError) as err:
+        source.set_signal(Quadrature(1000.0, -6.0))
+    assert str(err.value) == ("Quadrature plays on 2 output channels, the Tone playing on 1: the output "
+                              "channel count cannot change while the sound card plays; reopen it")
+    with pytest.raises(GeneratorError, match="Nyquist"):
+        source.set_signal(Tone(30000.0, -6.0))  # checked in the caller's thread
+    assert source._want_signal is None  # nothing was handed over
+    out = factory.latest("output")
+    for _ in range(3 * LEAD_BLOCKS):
+        pump_out(source, out)
+    assert gen.signal == Tone(1000.0, -6.0)
+
+    stereo = Generator(Quadrature(1000.0, -6.0), RATE, channels=2)
+    source = start(SoundCardSource("pulse", "pulse", RATE, 1, BLOCK, stereo, stream_factory=Factory()), running)
+    with pytest.raises(SoundCardError, match=r"^Tone plays on 1 output channel, the Quadrature playing on 2: "):
+        source.set_signal(Tone(1000.0, -6.0))
+    source.set_signal(Quadrature(1500.0, -6.0))  # same channels: live
+
+    class Plain:
+        channels, rate_hz = 1, RATE
+
+        def render_into(self, out):
+            out[...] = 0.0
+
+    plain = SoundCardSource("pulse", "pulse", RATE, 1, BLOCK, Plain(), stream_factory=Factory())
+    with pytest.raises(SoundCardError, match=r"^the sound card 'pulse' -> 'pulse' plays no generator .*it cannot "
+                                             r"change the signal live$"):
+        plain.set_signal(Tone(1000.0, -6.0))
+
+
+def test_the_output_callback_never_touches_the_requests_or_a_lock(fake_sd, running):
+    # Structure: the callbacks (and the ring methods they call) name only these attributes: not
+    # the wanted settings, the renderer, the timeline or any lock. A new name fails here.
+    allowed_out = {"_calls", "output_underflow", "counters", "output_underflows", "_played", "_now",
+                   "_out_mark", "_out_ring", "read", "fill", "_sound_from"}
+    allowed_in = {"_calls", "input_overflow", "counters", "input_overflows", "ring", "written", "_now",
+                  "_in_mark", "write"}
+    assert set(SoundCardSource._output_callback.__code__.co_names) <= allowed_out
+    assert set(SoundCardSource._input_callback.__code__.co_names) <= allowed_in
+    assert set(FrameRing.read.__code__.co_names) <= {"written", "capacity", "np", "empty", "channels", "_buf",
+                                                     "dtype", "min"}
+    # Behaviour: with the producer stuck inside the renderer, a change and a mute posted, and the
+    # state lock held by another thread, the callback still returns at once; the only functions it
+    # calls are the ring's read (and its min), the clock and ndarray.fill (sys.setprofile reports
+    # every Python and C function called).
+    factory = Factory()
+    gen = StallingGenerator(Tone(1000.0, -6.0), RATE, allowed=LEAD_BLOCKS + 1)
+    source = start(SoundCardSource("pulse", "pulse", RATE, 1, BLOCK, gen, stream_factory=factory), running)
+    callback = factory.latest("output").kwargs["callback"]
+    outdata = np.zeros((BLOCK, 1), dtype=np.float32)
+    status = FakeStatus()
+    holding, release = threading.Event(), threading.Event()
+
+    def hold_state_lock():
+        with source._state_lock:
+            holding.set()
+            release.wait(10.0)
+
+    holder = threading.Thread(target=hold_state_lock, daemon=True)
+    holder.start()
+    try:
+        assert holding.wait(5.0)
+        callback(outdata, BLOCK, None, status)
+        assert wait_for(lambda: gen.allowed <= 0)  # the producer now waits inside render_into
+        source.set_signal(Tone(2000.0, -6.0))
+        source.mute()
+        seen = set()
+
+        def profile(frame, event, arg):
+            if event == "call":
+                seen.add(frame.f_code.co_qualname)
+            elif event == "c_call":
+                seen.add(arg.__name__)
+
+        for _ in range(3):
+            began = time.perf_counter()
+            sys.setprofile(profile)
+            try:
+                callback(outdata, BLOCK, None, status)
+            finally:
+                sys.setprofile(None)
+            assert time.perf_counter() - began < 0.5
+        assert np.all(outdata == 0.0)  # muted at once
+        # (besides the callback itself, the fake status's truth test and setprofile switching off)
+        assert seen <= {"SoundCardSource._output_callback", "FakeStatus.__bool__", "FrameRing.read", "min",
+                        "monotonic", "fill", "setprofile"}, seen
+        assert "FrameRing.read" in seen and "fill" in seen
+    finally:
+        release.set()
+        gen.release.set()
+        holder.join(5.0)
 
 
 # -- device loss ----------------------------------------------------------------------------------

@@ -61,8 +61,8 @@ class RaisedCosineRamp:
         """Fade in from the present gain (carry on where a fade-out had got to; from silence, from 0)."""
         if self.position <= 0:
             self.position = -1
-        if self.position < self.length:
-            self.direction = RISING
+        # Already at full gain (a fall asked for but not yet begun): hold there, do not fall.
+        self.direction = RISING if self.position < self.length else HOLDING
 
     def fall(self) -> None:
         """Fade out from the present gain; already silent stays silent."""

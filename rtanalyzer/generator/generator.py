@@ -3,10 +3,11 @@
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass
 
 import numpy as np
 
-from rtanalyzer.generator.envelope import RaisedCosineRamp
+from rtanalyzer.generator.envelope import RISING, RaisedCosineRamp
 from rtanalyzer.generator.errors import GeneratorError
 from rtanalyzer.generator.oscillator import OscillatorBank
 from rtanalyzer.generator.signals import SIGNAL_TYPES, Quadrature, Sweep
@@ -30,6 +31,20 @@ def _setting(name: str, value, low: float, high: float, unit: str) -> float:
     if isinstance(value, bool) or not (math.isfinite(number) and low <= number <= high):
         raise GeneratorError(f"Generator {name} = {value!r} is out of range; allowed: {low:g} to {high:g} {unit}")
     return number
+
+
+@dataclass(frozen=True, eq=False)  # compared by identity: a hand-over tells one request from the next
+class PreparedSignal:
+    """A test signal checked against one generator's rate and channels, its voice worked out.
+
+    Made by :meth:`Generator.prepare` in any thread, so that :meth:`Generator.change` on the
+    rendering thread does no more than swap oscillators.
+    """
+
+    signal: object
+    voice: Voice
+    rate_hz: float
+    channels: int
 
 
 class Generator:
@@ -72,6 +87,14 @@ class Generator:
       starts from its own phase zero, which is what gives a multitone its Schroeder phases.
     * :meth:`mute` silences from the next sample, no fade; :meth:`unmute` fades in.
 
+    :attr:`signal_start` and :attr:`steady_from` say, in sample indices, where the signal now
+    playing began and from which sample it plays at full level: what an analysis needs to date
+    the tones it measures.
+
+    A generator is not thread-safe: control calls and rendering belong to one thread.
+    :meth:`prepare` alone may be called from any other (a sound-card source prepares a signal in
+    the caller's thread and hands it to its rendering thread).
+
     Time runs on while muted or stopped: the oscillators keep their phase and a sweep keeps its
     schedule, so sample indices stay those of the output stream.
 
@@ -98,6 +121,7 @@ class Generator:
         self._gain = np.empty(_CHUNK)
         self._mix = np.empty((_CHUNK, 2))
         self._sample = 0
+        self._full_at = 0  # sample at which the latest fade-in reached (or reaches) full gain
         self._muted = False
         self._stopped = False
         self._pending: tuple[object, Voice] | None = None
@@ -135,6 +159,31 @@ class Generator:
         return self._sample
 
     @property
+    def signal_start(self) -> int:
+        """Sample index at which :attr:`signal` began (its phase zero, the first sample of its fade-in)."""
+        return self._signal_start
+
+    @property
+    def steady_from(self) -> int | None:
+        """First sample of :attr:`signal` at full level, if no control call intervenes; else None.
+
+        None while muted, stopped, fading out or with a :meth:`change` pending. During a fade-in
+        it is the sample the fade will reach full gain at; once there, the sample it did.
+        """
+        if self._muted or self._stopped or self._pending is not None:
+            return None
+        if self._ramp.direction == RISING:
+            return self._sample + self._ramp.frames_to_end() - 1
+        if self._ramp.position >= self._ramp.length:
+            return self._full_at
+        return None
+
+    @property
+    def sweep_plan(self) -> SweepPlan | None:
+        """Timing of the :class:`Sweep` playing (from :attr:`signal_start`), or None for a steady signal."""
+        return self._plan
+
+    @property
     def silent(self) -> bool:
         """True while the output is zeros: muted, or stopped and faded out."""
         return self._muted or (self._ramp.silent and self._pending is None)
@@ -169,12 +218,32 @@ class Generator:
             if not self._stopped:
                 self._ramp.rise_from_silence()
 
+    def prepare(self, signal) -> PreparedSignal:
+        """Check ``signal`` against this generator and work out its oscillators, for :meth:`change`.
+
+        Reads only the rate and channels, which never change: safe from any thread.
+
+        Raises
+        ------
+        GeneratorError
+            If ``signal`` cannot be played with this generator's rate and channels.
+        """
+        if isinstance(signal, PreparedSignal):
+            if (signal.rate_hz, signal.channels) != (self._rate_hz, self._channels):
+                raise GeneratorError(
+                    f"signal prepared for {signal.rate_hz:g} Hz, {signal.channels} ch; this generator "
+                    f"runs at {self._rate_hz:g} Hz, {self._channels} ch"
+                )
+            return signal
+        return PreparedSignal(signal, self._prepare(signal), self._rate_hz, self._channels)
+
     def change(self, signal) -> None:
         """Play ``signal`` instead: fade the present one out, then fade the new one in.
 
         The work of preparing the new signal (for a multitone, finding its peak) is done here,
-        in the caller's thread, not while rendering. While muted, stopped or still silent the
-        switch is immediate. A second change before the first took effect replaces it.
+        in the caller's thread, not while rendering; or beforehand, by passing what
+        :meth:`prepare` returned. While muted, stopped or still silent the switch is immediate.
+        A second change before the first took effect replaces it.
 
         Raises
         ------
@@ -182,7 +251,8 @@ class Generator:
             If ``signal`` cannot be played with this generator's rate and channels; the
             generator then carries on unchanged.
         """
-        voice = self._prepare(signal)
+        prepared = self.prepare(signal)
+        signal, voice = prepared.signal, prepared.voice
         if self._muted or self._ramp.position <= 0:
             self._install(signal, voice)
             return
@@ -267,6 +337,8 @@ class Generator:
             fade = self._ramp.frames_to_end()
             if fade is not None and not self._muted:
                 n = min(n, max(1, fade))
+                if self._ramp.direction == RISING:
+                    self._full_at = self._sample + fade - 1
             if self._plan is not None:
                 n = min(n, self._plan.frames_to_boundary(self._sample))
                 self._bank.set_frequency(0, self._plan.step_at(self._sample)[1])
@@ -309,6 +381,7 @@ class Generator:
     def _install(self, signal, voice: Voice) -> None:
         self._pending = None
         self._signal = signal
+        self._signal_start = self._sample
         self._bank = OscillatorBank(voice.frequencies_hz, voice.amplitudes, voice.phases_rad, self._rate_hz, _CHUNK)
         self._amplitude = 10.0 ** (self.level_dbfs / 20.0)
         self._plan = SweepPlan.for_sweep(signal, self._rate_hz, self._sample) if isinstance(signal, Sweep) else None

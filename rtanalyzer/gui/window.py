@@ -312,6 +312,8 @@ class MainWindow(QMainWindow):
         built = self.config
         if built.source == "sim" and self.muted:
             built = built.with_changes(knobs=knobs.with_changes(capture_pep_dbfs=MUTED_CAPTURE_DBFS))
+        elif built.source == "device":
+            built = built.with_changes(muted=self.muted)  # a rebuilt card stays silent while muted
         return built
 
     def rebuild(self) -> None:
@@ -390,8 +392,11 @@ class MainWindow(QMainWindow):
             signal = choice.signal()
             if self.config.source != "file":
                 from rtanalyzer.generator.generator import Generator
+                from rtanalyzer.generator.signals import Quadrature
 
-                Generator(signal, self.config.rate_hz)  # checks Nyquist at this rate
+                # checks Nyquist at this rate; a sound card plays a quadrature pair on two channels
+                stereo = self.config.source == "device" and isinstance(signal, Quadrature)
+                Generator(signal, self.config.rate_hz, channels=2 if stereo else 1)
         except Exception as exc:
             self._generator_problem(str(exc))
             return
@@ -408,6 +413,14 @@ class MainWindow(QMainWindow):
                 engine.source.set_signal(signal)
             except Exception as exc:
                 self._generator_problem(str(exc))
+                return
+            self._fit_pending = True
+            self.trend.clear()
+        elif self.config.source == "device" and hasattr(engine.source, "set_signal"):
+            try:
+                engine.source.set_signal(signal)  # the producer fades over between two blocks
+            except RtaError:
+                self.rebuild()  # another output channel count (a quadrature pair): reopen the card
                 return
             self._fit_pending = True
             self.trend.clear()

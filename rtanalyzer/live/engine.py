@@ -137,6 +137,7 @@ class LiveEngine:
         self._read_to = 0
         self._last_window_end = None
         self._last_step = None
+        self._last_tones: tuple[float, ...] | None = None
         self._thread: threading.Thread | None = None
         self._running = threading.Event()
         self._paused = threading.Event()
@@ -225,7 +226,14 @@ class LiveEngine:
             settings["tones"] = list(last.tones_hz)
         sweep = None
         usable = True
-        if last.step is not None:
+        if last.step is None:
+            # A steady signal changed, or faded in or out, within the window: its spectrum mixes
+            # two drives. (All of it muted is one state: the figures say what the noise allows.)
+            usable = first is not None and first.tones_hz == last.tones_hz and first.settled == last.settled
+            if last.tones_hz != self._last_tones:
+                self._last_tones = last.tones_hz
+                self.spectrum.reset()  # do not average the old tones into the new figures
+        else:
             # The whole window must lie in one step occurrence, past its settling time.
             usable = first is not None and first.step == last.step and first.settled
             if last.settled_from is not None:

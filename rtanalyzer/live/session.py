@@ -47,6 +47,7 @@ class SessionConfig:
     averages: int = 1
     resolution_hz: float | None = None
     calibration: tuple[str, ...] = ()  # calibration profile names (rtanalyzer.measurements.calibration)
+    muted: bool = False  # a sound card's generator starts silent (the window's mute survives a rebuild)
 
     def __post_init__(self) -> None:
         # Named by their command-line options, the front end most people type into.
@@ -134,10 +135,13 @@ def build_source(config: SessionConfig):
     if config.signal is not None:
         generator = Generator(config.signal, config.rate_hz, channels=2 if isinstance(config.signal, Quadrature) else 1)
     channels = config.input_channels or (2 if config.iq else max(1, config.channel or 1))
-    return SoundCardSource(
+    source = SoundCardSource(
         input_device=config.input_device, output_device=config.output_device, rate_hz=config.rate_hz,
         input_channels=channels, block=config.block, renderer=generator,
     )
+    if config.muted:
+        source.mute()  # before the streams open: the first output callback is already silent
+    return source
 
 
 def plan_settings(config: SessionConfig, measurement: str) -> dict[str, Any]:

@@ -10,7 +10,16 @@ through the callbacks' clock and the reported latencies.
 The callbacks only copy: captured frames into ``ring``, output frames out of a preallocated
 ring that a producer thread keeps a few blocks ahead by calling the renderer (a
 :class:`~rtanalyzer.generator.Generator`). No callback renders, allocates sample arrays, logs
-or takes a lock — the contract in python-sounddevice's ``Stream`` documentation. A supervisor
+or takes a lock — the contract in python-sounddevice's ``Stream`` documentation.
+
+The generator is not thread-safe, so other threads never call it. :meth:`SoundCardSource.set_signal`,
+:meth:`~SoundCardSource.mute`, :meth:`~SoundCardSource.unmute` and
+:meth:`~SoundCardSource.set_playing` only store what is wanted (one attribute each, the newest
+wins); the producer compares it with what it last applied and calls the generator's
+``change``/``mute``/``unmute``/``stop``/``start`` between two blocks it renders, so the
+generator's fades stay click-free. The producer also keeps a short timeline of what the
+generator played from which sample, for :meth:`SoundCardSource.drive_at`. The output callback
+reads neither: muting reaches it as one integer, the first output frame it may play. A supervisor
 thread watches both streams; when the device goes away it keeps the source alive, says so in
 ``state`` and reopens the device every ``retry_s`` until it is back.
 
@@ -19,6 +28,7 @@ sounddevice (and with it PortAudio) is imported only when a device is looked up 
 
 from __future__ import annotations
 
+import sys
 import threading
 import time
 from typing import Any, Callable
@@ -27,8 +37,8 @@ import numpy as np
 
 from rtanalyzer.errors import RtaError
 from rtanalyzer.generator.errors import GeneratorError
-from rtanalyzer.generator.generator import Generator
-from rtanalyzer.generator.signals import Sweep
+from rtanalyzer.generator.generator import Generator, PreparedSignal
+from rtanalyzer.generator.signals import Quadrature
 from rtanalyzer.sources import soundcard_devices as devices
 from rtanalyzer.sources.drive import tones_of
 from rtanalyzer.sources.live import Drive, LiveSource
@@ -40,6 +50,8 @@ BLOCK_RANGE = (64, 16384)
 LEAD_BLOCKS = 4  # output rendered ahead of the callback: room for a late producer wake-up
 LOST_STATE = "device lost — retrying"
 _now = time.monotonic  # the callbacks' clock; a name of its own so tests can set the time
+_SILENT = sys.maxsize  # `_sound_from` while muted: no output frame may sound
+TIMELINE_LENGTH = 64  # segments of the generator's history kept for drive_at (two per change)
 
 
 def _default_factory(kind: str, **kwargs):
@@ -85,6 +97,11 @@ class SoundCardSource(LiveSource):
     the output ring could not supply (played as zeros). ``outages`` counts the times the
     device was lost and ``lost_s`` adds up how long; while lost, ``state`` reads
     ``"device lost — retrying"`` and the ring simply stops growing.
+
+    While it runs, :meth:`set_signal`, :meth:`mute`, :meth:`unmute` and :meth:`set_playing`
+    may be called from any thread (the window's): the producer thread carries them out through
+    the generator's fades, and :meth:`drive_at` dates them. Only a change of output channel
+    count needs the device reopened.
     """
 
     kind = "sound card"
@@ -127,8 +144,21 @@ class SoundCardSource(LiveSource):
         self._lead = LEAD_BLOCKS * self.block
         self._out_ring = FrameRing(self._lead + 4 * self.block, self.output_channels) if renderer else None
         self._played = 0
-        self._muted = False
         self._gen_start = 0  # renderer sample of output frame 0, taken at the first start
+        # Wanted by the control calls (any thread; plain stores, the newest wins):
+        self._want_signal: PreparedSignal | None = None
+        self._want_muted = False
+        self._want_playing = True
+        self._signal_set = getattr(renderer, "signal", None)  # the signal last asked for
+        # Applied by the producer thread (only it reads the wanted values and calls the renderer):
+        self._applied_signal: PreparedSignal | None = None
+        self._gen_muted = False
+        self._gen_playing = True
+        # Read by the output callback: output frames before this index play as zeros.
+        self._sound_from = 0
+        # (first renderer sample, signal, sweep plan or None, at full level) segments, oldest
+        # first; replaced whole by the producer, read by drive_at.
+        self._timeline: tuple[tuple[int, Any, Any, bool], ...] = ()
         # Set by the callbacks (plain attribute stores, atomic under the GIL):
         self._calls = {"input": 0, "output": 0}
         self._in_mark: tuple[int, float] | None = None  # (captured index, clock) of the newest block
@@ -164,14 +194,75 @@ class SoundCardSource(LiveSource):
 
     @property
     def muted(self) -> bool:
-        return self._muted
+        return self._want_muted
+
+    @property
+    def playing(self) -> bool:
+        return self._want_playing
 
     def mute(self) -> None:
-        """Play zeros from the next output callback on (the renderer's time runs on)."""
-        self._muted = True
+        """Play zeros from the next output callback on (the renderer's time runs on).
+
+        Any thread. The producer then mutes the generator too, between two blocks.
+        """
+        self._want_muted = True
+        self._sound_from = _SILENT
 
     def unmute(self) -> None:
-        self._muted = False
+        """Sound again: the producer unmutes the generator, which fades in from the next block it
+        renders (about ``LEAD_BLOCKS`` blocks later); frames rendered before stay zeros.
+
+        Any thread. A renderer without ``unmute`` comes back at full level, without a fade.
+        """
+        self._want_muted = False
+
+    def set_playing(self, playing: bool) -> None:
+        """Fade the generator out (False) or back in (True) through its ramp, without closing the device.
+
+        Any thread; the producer applies it between two blocks.
+
+        Raises
+        ------
+        SoundCardError
+            If the renderer is not a :class:`Generator`.
+        """
+        self._generator("fade the output in or out")
+        self._want_playing = bool(playing)
+
+    def set_signal(self, signal) -> None:
+        """Play ``signal`` instead, through the generator's fade out and in, without reopening the device.
+
+        Any thread. The signal is checked and prepared here (for a multitone, its peak is found
+        in the caller's thread); the producer switches between two blocks it renders, so the
+        old signal starts fading out about ``LEAD_BLOCKS`` blocks later. :meth:`drive_at`
+        reports the new tones from the first frame the generator rendered of them. A second
+        call before the first took effect replaces it.
+
+        Raises
+        ------
+        SoundCardError
+            If the renderer is not a :class:`Generator`, or ``signal`` needs another number of
+            output channels than the signal asked for before (a :class:`Quadrature` pair needs
+            two, any other signal one): the device must then be reopened with a new source.
+        GeneratorError
+            If ``signal`` cannot be played at this rate.
+        """
+        gen = self._generator("change the signal live")
+        need, have = _channels_needed(signal), _channels_needed(self._signal_set)
+        if need != have:
+            raise SoundCardError(
+                f"{type(signal).__name__} plays on {need} output channel{'s' if need != 1 else ''}, the "
+                f"{type(self._signal_set).__name__} playing on {have}: the output channel count cannot "
+                "change while the sound card plays; reopen it"
+            )
+        self._want_signal = gen.prepare(signal)
+        self._signal_set = signal
+
+    def _generator(self, what: str) -> Generator:
+        if not isinstance(self.renderer, Generator):
+            raise SoundCardError(f"the {self.name} plays no generator ({self.renderer!r}); "
+                                 f"it cannot {what}")
+        return self.renderer
 
     def start(self) -> None:
         """Open the device(s) and start capturing (and playing).
@@ -186,6 +277,8 @@ class SoundCardSource(LiveSource):
         if self._out_ring is not None:
             if self._out_ring.written == 0:
                 self._gen_start = getattr(self.renderer, "sample_index", 0)
+                if isinstance(self.renderer, Generator):
+                    self._note(self.renderer.signal_start)
             self._top_up(np.empty((self.block, self.output_channels)))  # no underflow at the start
         self._open()
         self._set_state("running")
@@ -254,24 +347,89 @@ class SoundCardSource(LiveSource):
         self.ring.write(indata)
 
     def _output_callback(self, outdata, frames, time_info, status) -> None:
+        # Copies and plain loads/stores only; the wanted settings and the renderer are the producer's.
         self._calls["output"] += 1
         if status and status.output_underflow:
             self.counters.output_underflows += 1
-        self._out_mark = (self._played, _now())
-        if self._out_ring.read(self._played, frames, outdata) is None:
+        played = self._played
+        self._out_mark = (played, _now())
+        if self._out_ring.read(played, frames, outdata) is None:
             outdata.fill(0.0)
             self.counters.output_underflows += 1
             return
-        self._played += frames
-        if self._muted:
+        self._played = played + frames
+        quiet = self._sound_from - played  # muted, or rendered before an unmute took effect
+        if quiet >= frames:
             outdata.fill(0.0)
+        elif quiet > 0:
+            outdata[:quiet].fill(0.0)
 
     # -- threads ----------------------------------------------------------------------------------
 
     def _top_up(self, buffer: np.ndarray) -> None:
+        gen = self.renderer
+        dated = isinstance(gen, Generator)
         while self._out_ring.written - self._played < self._lead:
-            self.renderer.render_into(buffer)
+            self._apply_requests()
+            began = gen.signal_start if dated else 0
+            gen.render_into(buffer)
             self._out_ring.write(buffer)
+            if dated and gen.signal_start != began:  # a change took effect inside this block
+                self._note(gen.signal_start)
+
+    def _apply_requests(self) -> None:
+        """Producer thread: carry out what the control calls asked for, before the next block.
+
+        Order matters to the generator: a stop drops a change still fading out, so the change
+        is made again after it; mute and stop go before a change (which then switches at once
+        or when silent), start and unmute after it.
+        """
+        gen = self.renderer
+        dated = isinstance(gen, Generator)
+        muted, playing, wanted = self._want_muted, self._want_playing, self._want_signal
+        # A mute and unmute between two looks leave the callback silenced all the same: mute the
+        # generator too, so that it comes back through a fade-in rather than mid-waveform.
+        silenced = self._sound_from == _SILENT
+        moved = False
+        if (muted or silenced) and not self._gen_muted:
+            if dated:
+                gen.mute()
+            self._gen_muted = moved = True
+        if dated and not playing and self._gen_playing:
+            gen.stop()
+            self._gen_playing, moved = False, True
+            if self._applied_signal is not None and gen.signal is not self._applied_signal.signal:
+                gen.change(self._applied_signal)  # stop dropped it while it was fading out
+        if dated and wanted is not self._applied_signal:
+            gen.change(wanted)
+            self._applied_signal, moved = wanted, True
+        if dated and playing and not self._gen_playing:
+            gen.start()
+            self._gen_playing, moved = True, True
+        if not muted and self._gen_muted:
+            if dated:
+                gen.unmute()
+            self._gen_muted, moved = False, True
+            self._sound_from = self._out_ring.written  # the fade-in's first frame
+            if self._want_muted:  # mute() came meanwhile and its _SILENT may have been overwritten
+                self._sound_from = _SILENT
+        if moved and dated:
+            self._note(gen.sample_index)
+
+    def _note(self, from_sample: int) -> None:
+        """Producer thread: record what the generator plays from renderer sample ``from_sample`` on.
+
+        Segments from ``from_sample`` on were predictions made earlier (a fade-in's end) and
+        are replaced; the timeline is swapped whole, so drive_at sees the old or the new one.
+        """
+        gen = self.renderer
+        steady = gen.steady_from
+        signal, plan = gen.signal, gen.sweep_plan
+        kept = [seg for seg in self._timeline if seg[0] < from_sample][-(TIMELINE_LENGTH - 2):]
+        kept.append((from_sample, signal, plan, steady is not None and steady <= from_sample))
+        if steady is not None and steady > from_sample:
+            kept.append((steady, signal, plan, True))
+        self._timeline = tuple(kept)
 
     def _produce(self) -> None:
         """Keep the output ring LEAD_BLOCKS ahead of the callback."""
@@ -334,25 +492,38 @@ class SoundCardSource(LiveSource):
         Dates the frame from the newest input callback (its clock time, less the reported input
         latency) and finds the output sample leaving the card then from the newest output
         callback (plus the reported output latency). Sound servers report latency loosely:
-        through PulseAudio the estimate was seen 40 ms off. None without a Generator, before
-        both directions have run, or before the generator's first sample was played.
+        through PulseAudio the estimate was seen 40 ms off. The tones are those the generator
+        rendered for that sample, from the producer's timeline: after :meth:`set_signal`, the
+        old ones up to the switch and the new ones after it. ``settled`` is False while a fade
+        is under way, while muted and while faded out (the tones are still those set). None
+        without a Generator, before both directions have run, before the generator's first
+        sample was played, or for a sample older than the timeline remembers.
         """
-        gen, in_mark, out_mark = self.renderer, self._in_mark, self._out_mark
-        if not isinstance(gen, Generator) or in_mark is None or out_mark is None:
+        in_mark, out_mark, timeline = self._in_mark, self._out_mark, self._timeline
+        if not isinstance(self.renderer, Generator) or in_mark is None or out_mark is None:
             return None
         sampled_at = in_mark[1] - self._latency_s["input"] + (frame - in_mark[0]) / self.rate_hz
         played = out_mark[0] + (sampled_at - out_mark[1] - self._latency_s["output"]) * self.rate_hz
         if played < 0:
             return None
         sample = self._gen_start + int(played)
-        signal = gen.signal
-        if isinstance(signal, Sweep):
+        for start, signal, plan, full in reversed(timeline):
+            if sample >= start:
+                break
+        else:
+            return None
+        if plan is not None:
             try:
-                step, frequency, settled = gen.step_at(sample)
-            except GeneratorError:  # before the sweep now playing began
+                step, frequency, settled = plan.step_at(sample)
+            except GeneratorError:  # before the sweep began
                 return None
-            return Drive((frequency,), settled, step)
-        return Drive(tones_of(signal)[0], sample >= self._gen_start + gen.ramp_frames)
+            return Drive((frequency,), full and settled, step)
+        return Drive(tones_of(signal)[0], full)
+
+
+def _channels_needed(signal) -> int:
+    """Output channels a signal plays on: two for a quadrature pair (I left, Q right), else one."""
+    return 2 if isinstance(signal, Quadrature) else 1
 
 
 def _close_quietly(stream, timeout: float) -> None:
