@@ -17,13 +17,18 @@ from rtanalyzer.sources import soundcard, soundcard_devices
 from rtanalyzer.sources.soundcard import SoundCardSource
 
 
-def test_a_tone_change_on_the_sound_card_is_live_and_a_quadrature_pair_reopens_it(qtbot, monkeypatch):
+def _card_window(qtbot, monkeypatch):
+    """The window on the fake sound card, playing a 1 kHz tone; (window, stream factory)."""
     sd = FakeSd(DEVICES, default=(2, 2))
     monkeypatch.setattr(soundcard_devices, "load_sounddevice", lambda: sd)
     factory = Factory(PumpedStream)
     monkeypatch.setattr(soundcard, "_default_factory", factory)
     config = SessionConfig(source="device", signal=Tone(1000.0, -6.0), input_device="pulse", output_device="pulse")
-    window = open_window(qtbot, config)
+    return open_window(qtbot, config), factory
+
+
+def test_a_tone_change_on_the_sound_card_is_live_and_a_quadrature_pair_reopens_it(qtbot, monkeypatch):
+    window, factory = _card_window(qtbot, monkeypatch)
     engine = window.runner.engine
     source = engine.source
     assert isinstance(source, SoundCardSource) and source.renderer.signal == Tone(1000.0, -6.0)
@@ -54,12 +59,7 @@ def test_a_tone_change_on_the_sound_card_is_live_and_a_quadrature_pair_reopens_i
 def test_a_card_reopened_while_muted_stays_silent(qtbot, monkeypatch):
     # Safety: reopening the card (a quadrature pair needs two output channels) while the window is
     # muted must not start the exciter's drive again.
-    sd = FakeSd(DEVICES, default=(2, 2))
-    monkeypatch.setattr(soundcard_devices, "load_sounddevice", lambda: sd)
-    factory = Factory(PumpedStream)
-    monkeypatch.setattr(soundcard, "_default_factory", factory)
-    config = SessionConfig(source="device", signal=Tone(1000.0, -6.0), input_device="pulse", output_device="pulse")
-    window = open_window(qtbot, config)
+    window, _ = _card_window(qtbot, monkeypatch)
     engine = window.runner.engine
     window.set_muted(True)
     kind = window.controls.kind
