@@ -296,3 +296,28 @@ def test_a_network_design_lies_over_the_points_and_informs_the_advice(qtbot, tmp
     assert all(p.design is None for p in view.plots) and view.design_label.text() == "no design"
     qtbot.wait(400)
     view.grab().save(str(tmp_path / "design.png"), "PNG")
+
+
+def test_following_the_advice_raises_the_band_worst_to_what_it_promised(qtbot):
+    # The loop a builder runs: read which adjustment limits the band, turn the trimmers as the
+    # advice says, and watch the band's worst point rise to the figure the advice promised (the
+    # network's ripple alone). On this bench a positive phase trim turns the Q path so that I and
+    # Q come closer together (sources/bench/knobs.py: error = network + LO - phase trim), and the
+    # amplitude trim is Q's gain.
+    window = open_window(qtbot, SessionConfig(source="sim", signal=Multitone.spread(300.0, 3000.0, 8, -6.0)))
+    view = choose_network(qtbot, window)
+    qtbot.waitUntil(lambda: len(view.points) == 8 and "after both trims" in view.advice_label.text(), timeout=10_000)
+    advice = view.advice_label.text()
+    promised = float(re.search(r"after both trims the worst would be (\d+\.\d) dB", advice).group(1))
+    before = view.worst["predicted_suppression_db"]
+    amp = re.search(r"amplitude: (raise|lower) Q by (\d+\.\d+) dB", advice)
+    phase = re.search(r"phase: bring I and Q (\d+\.\d+)° (further apart|closer together)", advice)
+    assert amp and phase and promised > before + 6.0
+    knobs = window.controls.knobs
+    step_db = float(amp.group(2)) * (1 if amp.group(1) == "raise" else -1)
+    step_deg = float(phase.group(1)) * (1 if phase.group(2) == "closer together" else -1)
+    knobs["amplitude_trim_db"].spin.setValue(knobs["amplitude_trim_db"].value() + step_db)
+    knobs["phase_trim_deg"].spin.setValue(knobs["phase_trim_deg"].value() + step_deg)
+    # the advice is given to 0.01 dB and 0.01°: within 0.5 dB of its promise at these depths
+    qtbot.waitUntil(lambda: view.worst is not None and view.worst["predicted_suppression_db"] >= promised - 0.5,
+                    timeout=10_000)
