@@ -52,10 +52,19 @@ def test_choosing_a_passband_profile_corrects_the_live_figure_and_is_remembered(
     # The markers stay on the drawn (uncorrected) trace; the labels carry the corrected figures.
     import numpy as np
 
-    qtbot.waitUntil(lambda: window.last_frame is not None and window.last_frame.readout.result
-                    and window.last_frame.readout.result.get("calibration") == ["rx"], timeout=5_000)
-    frame = window.last_frame
-    point = frame.readout.result["points"][0]
+    got = {}
+
+    def corrected_frame() -> bool:
+        frame = window.last_frame
+        result = frame.readout.result if frame is not None else None
+        if result and result.get("calibration") == ["rx"] and result.get("points") and frame.level_dbfs is not None:
+            got["frame"], got["result"] = frame, result
+            return True
+        return False
+
+    qtbot.waitUntil(corrected_frame, timeout=5_000)
+    frame = got["frame"]
+    point = got["result"]["points"][0]
     unwanted = next(m for m in frame.markers if m.role == "unwanted")
     near = np.abs(frame.frequencies_hz - unwanted.frequency_hz) < 30.0
     assert unwanted.level_dbfs == pytest.approx(float(frame.level_dbfs[near].max()), abs=0.01)
