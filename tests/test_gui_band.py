@@ -321,3 +321,27 @@ def test_following_the_advice_raises_the_band_worst_to_what_it_promised(qtbot):
     # the advice is given to 0.01 dB and 0.01°: within 0.5 dB of its promise at these depths
     qtbot.waitUntil(lambda: view.worst is not None and view.worst["predicted_suppression_db"] >= promised - 0.5,
                     timeout=10_000)
+
+
+def test_the_band_chosen_in_the_view_is_the_band_the_session_judges(qtbot):
+    # The worst point the main window shows, trends and keeps as best is the worst inside the band
+    # the user set in the band view; the choice is remembered for the next start.
+    from rtanalyzer.gui.settings import WindowSettings
+
+    config = SessionConfig(source="sim", signal=EXCITER_TONES, measurement="sideband")
+    window = open_window(qtbot, config, explicit=frozenset({"measurement"}))
+    view = window.band_view
+    qtbot.waitUntil(lambda: len(view.points) == len(EXCITER_TONES.frequencies_hz), timeout=10_000)
+    high = sorted(EXCITER_TONES.frequencies_hz)[-2:]
+    view.band_low.setValue(high[0] - 10.0)
+    assert window.runner.engine.settings["band"] == [high[0] - 10.0, view.band[1]]
+
+    def judged_in_band() -> bool:
+        r = window.last_readout.result if window.last_readout else None
+        return bool(r) and r.get("band_hz") == [high[0] - 10.0, view.band[1]] and r["worst_in_band"] is not None \
+            and min(abs(r["worst_in_band"]["tone_hz"] - f) for f in high) < 0.5
+
+    qtbot.waitUntil(judged_in_band, timeout=5_000)
+    r = window.last_readout.result
+    assert window.last_readout.best["value"] == r["worst_in_band"]["sideband_suppression_db"]
+    assert WindowSettings().get("band/range_hz") == [high[0] - 10.0, view.band[1]]

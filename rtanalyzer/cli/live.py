@@ -64,6 +64,8 @@ def add_parser(subparsers) -> None:
                    "a 90° network's outputs, left = I, right = Q)")
     p.add_argument("--calibration", action="extend", nargs="+", metavar="NAME", default=None,
                    help="calibration profile(s) taken out of every readout (calibration/NAME.cal, or a path)")
+    p.add_argument("--trim-band", type=float, nargs=2, metavar=("LO", "HI"), default=None,
+                   help="audio band whose worst point is the figure trimmed toward, Hz (default 300 3000)")
     p.add_argument("--update-hz", type=float, default=20.0, help="readouts per second (default 20)")
     p.add_argument("--average", type=int, default=1, help="spectra averaged per readout (default 1)")
     p.add_argument("--resolution", type=float, default=None, metavar="HZ",
@@ -100,6 +102,15 @@ def _signal(args: argparse.Namespace, default_kind: str | None):
     return build_signal(args)
 
 
+def _trim_band(band) -> tuple[float, float] | None:
+    if band is None:
+        return None
+    lo, hi = band
+    if not (0 < lo < hi):
+        raise RtaError(f"--trim-band {lo:g} {hi:g}: give two frequencies in Hz above 0, low below high")
+    return float(lo), float(hi)
+
+
 def config_from_args(args: argparse.Namespace):
     """The session the options describe, with its source resolved (and a notice if chosen)."""
     from rtanalyzer.live.session import SessionConfig, resolve_source
@@ -118,6 +129,7 @@ def config_from_args(args: argparse.Namespace):
         tones_hz=tuple(args.tone or args.tones or ()), carrier_hz=args.carrier, wanted=args.wanted,
         channel=args.channel, iq=bool(args.iq), measurement=measure, update_hz=args.update_hz,
         averages=args.average, resolution_hz=args.resolution, calibration=tuple(args.calibration or ()),
+        band_hz=_trim_band(args.trim_band),
     )
     return config, notice
 
@@ -150,6 +162,8 @@ def explicit_options(args: argparse.Namespace) -> frozenset[str]:
         given.add("averages")
     if args.calibration:
         given.add("calibration")
+    if args.trim_band:
+        given.add("band")
     given.update(f"knobs.{name}" for name in knob_changes(args))
     return frozenset(given)
 

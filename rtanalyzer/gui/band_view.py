@@ -73,6 +73,7 @@ class BandView(QWidget):
         self.sweep_steps = 0
         self.design: Design | None = None
         self.on_design = None  # called with the design file's path (or None) when it changes
+        self.on_band = None  # called with (low, high) Hz when the user changes the band
         self._dirty = False
         self._build()
         self.set_mode(measurement, force=True)
@@ -157,7 +158,7 @@ class BandView(QWidget):
             spin.setSuffix(" Hz")
             spin.setKeyboardTracking(False)
             spin.setValue(value)
-            spin.valueChanged.connect(lambda _: self._evaluate())
+            spin.valueChanged.connect(lambda _: self._band_changed())
         self.band_low.setObjectName("band_low")
         self.band_high.setObjectName("band_high")
         bar.addWidget(self.band_low)
@@ -320,6 +321,19 @@ class BandView(QWidget):
         """The points inside the band, by frequency."""
         lo, hi = self.band
         return [p for p in self.sorted_points() if lo <= p[self.mode.fkey] <= hi]
+
+    def _band_changed(self) -> None:
+        self._evaluate()
+        if self.on_band is not None:
+            self.on_band(self.band)
+
+    def set_band(self, low_hz: float, high_hz: float) -> None:
+        """Show ``low_hz``–``high_hz`` as the band (without telling ``on_band``)."""
+        for spin, value in ((self.band_low, low_hz), (self.band_high, high_hz)):
+            spin.blockSignals(True)
+            spin.setValue(value)
+            spin.blockSignals(False)
+        self._evaluate()
 
     def _evaluate(self) -> None:
         """Worst point in the band and the diagnosis of the band's points."""
@@ -500,6 +514,19 @@ def attach(window) -> BandView:
         if isinstance(saved, str) and os.path.isfile(saved):
             view.set_design(saved)
         view.on_design = lambda path: settings.put("band/design", path)
+
+    def band_changed(band: tuple[float, float]) -> None:
+        # The session judges its figures (worst in band, trend, best so far) over the same band.
+        window.config = window.config.with_changes(band_hz=band)
+        engine = window.runner.engine
+        if engine is not None and any(p.name == "band" for p in engine.measurement.parameters):
+            engine.update_settings(band=list(band))
+        if settings is not None:
+            settings.put("band/range_hz", list(band))
+
+    view.on_band = band_changed
+    if window.config.band_hz is not None:
+        view.set_band(*window.config.band_hz)
 
     window.runner.started.connect(started)
     window.runner.readout.connect(readout)

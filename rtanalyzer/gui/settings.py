@@ -70,6 +70,8 @@ class WindowSettings:
         self.put("measurement/kind", config.measurement)
         self.put("measurement/averages", config.averages)
         self.put("calibration/profiles", list(config.calibration))
+        if config.band_hz is not None:
+            self.put("band/range_hz", list(config.band_hz))
         self.put("generator/choice", generator.as_dict())
         self.put("bench/knobs", config.knobs.as_dict())
 
@@ -78,7 +80,7 @@ class WindowSettings:
         """``config`` and ``generator`` with the saved values put back, except those named in ``explicit``.
 
         ``explicit`` holds "source", "devices", "rate", "file", "signal", "plan.carrier",
-        "plan.wanted", "plan.view", "plan.tones", "measurement", "averages", "calibration" and
+        "plan.wanted", "plan.view", "plan.tones", "measurement", "averages", "calibration", "band" and
         "knobs.NAME". A saved calibration profile that no longer exists is left out.
         """
         if not self.has_session:
@@ -105,6 +107,11 @@ class WindowSettings:
         take("plan.tones", "tones_hz", "plan/tones_hz", lambda v: isinstance(v, list))
         take("measurement", "measurement", "measurement/kind", lambda v: v is None or v in measurement_names())
         take("averages", "averages", "measurement/averages", lambda v: isinstance(v, int) and 1 <= v <= 64)
+        take("band", "band_hz", "band/range_hz",
+             lambda v: isinstance(v, list) and len(v) == 2 and all(isinstance(b, (int, float)) for b in v)
+             and 0 < v[0] < v[1])
+        if "band_hz" in changes:
+            changes["band_hz"] = tuple(float(b) for b in changes["band_hz"])
         take("calibration", "calibration", "calibration/profiles",
              lambda v: isinstance(v, list) and all(isinstance(n, str) for n in v))
         if "calibration" in changes:

@@ -48,6 +48,7 @@ class SessionConfig:
     resolution_hz: float | None = None
     calibration: tuple[str, ...] = ()  # calibration profile names (rtanalyzer.measurements.calibration)
     muted: bool = False  # a sound card's generator starts silent (the window's mute survives a rebuild)
+    band_hz: tuple[float, float] | None = None  # the band whose worst point is the figure (None: 300-3000 Hz)
 
     def __post_init__(self) -> None:
         # Named by their command-line options, the front end most people type into.
@@ -154,6 +155,8 @@ def plan_settings(config: SessionConfig, measurement: str) -> dict[str, Any]:
     settings: dict[str, Any] = {"carrier": carrier, "wanted": wanted or "auto"}
     if config.resolution_hz is not None:
         settings["resolution"] = config.resolution_hz
+    if config.band_hz is not None and measurement in ("sideband", "quadrature"):
+        settings["band"] = list(config.band_hz)
     if measurement == "quadrature":  # carrier and side kept for the window's plan changes; unused
         return {**settings, **_quadrature_settings(config)}
     tones = list(tones_of(config.signal)[0]) if config.signal is not None else list(config.tones_hz)
