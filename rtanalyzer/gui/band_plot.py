@@ -20,8 +20,8 @@ from vispy import scene
 
 from rtanalyzer.gui import style
 from rtanalyzer.gui.band_design import Curve
-from rtanalyzer.gui.plots import MINUS, Plot, PlotCanvas, _line, _rgba
-from rtanalyzer.gui.ticks import frequency_ticks
+from rtanalyzer.gui.plots import Plot, PlotCanvas, _line, _rgba
+from rtanalyzer.gui.ticks import frequency_ticks, value_ticks
 
 X_RANGE_HZ = (100.0, 6000.0)  # the frequency axis, widened to take in every point
 BAND_FILL = "#e3efe9"  # a pale tint of the wanted teal: the band judged
@@ -50,24 +50,8 @@ class PlotSpec:
 
 
 def band_value_ticks(target: int = 5):
-    """Linear ticks labelled with enough decimals for their step (a 0.25 step keeps two)."""
-    from rtanalyzer.gui.ticks import linear_ticks
-
-    def ticks(lo: float, hi: float):
-        major, minor = linear_ticks(lo, hi, target)
-        step = float(major[1] - major[0]) if len(major) > 1 else 1.0
-        decimals = 0
-        while decimals < 6 and abs(round(step, decimals) - step) > 1e-9 * max(step, 1e-12):
-            decimals += 1
-        labels = []
-        for v in major:
-            text = f"{v:.{decimals}f}"
-            if float(text) == 0:
-                text = text.lstrip("-")
-            labels.append(text.replace("-", MINUS))
-        return major, minor, labels
-
-    return ticks
+    """Linear ticks labelled with enough decimals for their step (see ``ticks.format_number``)."""
+    return value_ticks(target)
 
 
 class BandPlot(Plot):

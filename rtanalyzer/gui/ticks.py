@@ -63,9 +63,17 @@ def format_hz(f: float) -> str:
     return text.replace("-", MINUS)
 
 
+def step_decimals(step: float) -> int:
+    """Decimals a tick step needs to be printed exactly: 0.25 needs two, 2.5 one, 50 none."""
+    decimals = 0
+    while decimals < 6 and abs(round(step, decimals) - step) > 1e-9 * max(abs(step), 1e-12):
+        decimals += 1
+    return decimals
+
+
 def format_number(v: float, step: float) -> str:
-    decimals = max(0, -math.floor(math.log10(step))) if step > 0 else 0
-    text = f"{v:.{min(decimals, 4)}f}"
+    """A tick value with as many decimals as its step needs (32.5 on a 2.5 step, not 32)."""
+    text = f"{v:.{step_decimals(step) if step > 0 else 0}f}"
     if text.startswith("-") and float(text) == 0:
         text = text[1:]
     return text.replace("-", MINUS)
