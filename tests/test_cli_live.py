@@ -80,7 +80,7 @@ def test_jsonl_sideband_readouts(capsys, sim_wav):
     # the first readouts may wait for a full window of audio; the rest carry figures
     measured = [row for row in rows if row.get("error") is None]
     assert len(measured) >= 5 and rows[-1].get("error") is None
-    assert all(row.get("error") in (None, "waiting for audio") for row in rows)
+    assert all(row.get("error") in (None, "filling the analysis window") for row in rows)
     # the same keys as `analyze sideband --json` on a capture of the same bench
     code, out, _ = run(["analyze", "sideband", sim_wav, "--tone", 1000, "--carrier", 4000, "--json"], capsys)
     assert code == 0
@@ -231,3 +231,23 @@ def test_ctrl_c_ends_a_run_cleanly(tmp_path):
     assert proc.returncode == 0, err
     assert "Traceback" not in err
     assert first.strip()
+
+
+def test_a_negative_carrier_on_one_channel_stops_before_any_audio(capsys):
+    code, out, err = run(["live", "--headless", "--source", "sim", "--carrier", "-400", "--seconds", "2"], capsys)
+    assert_one_error_line(code, out, err, "positive audio frequency")
+
+
+def test_a_usage_error_names_the_command_once_and_where_help_is(capsys):
+    code, out, err = run(["live", "--headless", "--carrier", "banana"], capsys)
+    assert_one_error_line(code, out, err, "invalid float value")
+    assert err.count("rtanalyzer") == 2 and "see: rtanalyzer live --help" in err
+
+
+def test_piped_sweep_lines_carry_figures_and_their_step(capsys):
+    # Not a terminal: one line a second, made from the newest readout with figures (a settling
+    # readout must not hide them), each saying which step of the sweep it is.
+    code, out, _ = run(["live", "--headless", "--source", "sim", "--generate", "sweep", "--seconds", "3.5"], capsys)
+    lines = [line for line in out.splitlines() if line.startswith("sweep step")]
+    assert code == 0 and len(lines) >= 2
+    assert all("opposite sideband" in line and " dB" in line for line in lines)

@@ -64,10 +64,10 @@ def test_no_audio_yet_is_said_not_raised():
     source, engine = _sideband()
     r = engine.step()
     assert isinstance(r, Readout)
-    assert r.result is None and r.error == "waiting for audio"
+    assert r.result is None and r.error == "filling the analysis window"
     assert r.frame == 0
     _feed(source, _window_blocks(engine) - 1)  # one block short of a window
-    assert engine.step().error == "waiting for audio"
+    assert engine.step().error == "filling the analysis window"
 
 
 def test_live_window_is_about_85_ms():
@@ -230,7 +230,7 @@ def test_sweep_readouts_settle_then_report_the_step_tone():
     for _ in range(4 * dwell // BLOCK):  # one pass, a readout per block
         _feed(source, 1)
         r = engine.step()
-        if r.error == "waiting for audio":
+        if r.error == "filling the analysis window":
             continue
         end = r.frame
         first = end - engine.nfft

@@ -62,6 +62,7 @@ class TerminalDisplay:
         self.tty = stream.isatty()
         self._drawn = 0
         self._last_plain = None
+        self._held: Readout | None = None  # plain output: the readout the next line is made of
 
     def lines(self, readout: Readout) -> list[str]:
         head = f"rtanalyzer live · {self.source} · {self.measure} · {readout.state}"
@@ -83,7 +84,12 @@ class TerminalDisplay:
         return [head, *body]
 
     def _figures(self, readout: Readout) -> list[str]:
-        return figure_lines(self.measure, readout.result) if readout.result else [f"({readout.error})"]
+        lines = figure_lines(self.measure, readout.result) if readout.result else [f"({readout.error})"]
+        sweep = readout.sweep
+        if sweep is not None:  # say which step a figure belongs to
+            lines.insert(0, f"sweep step {sweep['step'] + 1} at {sweep['frequency_hz']:.0f} Hz"
+                            + ("" if readout.result else ", settling"))
+        return lines
 
     def show(self, readout: Readout) -> None:
         lines = self.lines(readout)
@@ -95,12 +101,17 @@ class TerminalDisplay:
                 self.stream.write("\x1b[2K\n")
             self._drawn = max(len(lines), self._drawn)
         else:
+            # One line a second, from the newest readout with figures in it (a sweep's settling
+            # readouts would otherwise hide every figure).
+            if readout.result is not None or self._held is None:
+                self._held = readout
             second = int(readout.t)
             if second == self._last_plain:
                 return
             self._last_plain = second
-            levels = next(line for line in lines if line.startswith("levels"))
-            self.stream.write(" | ".join([*self._figures(readout), levels]) + "\n")
+            shown, self._held = self._held, None
+            levels = next(line for line in self.lines(shown) if line.startswith("levels"))
+            self.stream.write(" | ".join([*self._figures(shown), levels]) + "\n")
         self.stream.flush()
 
     def close(self) -> None:

@@ -32,7 +32,11 @@ class _Parser(argparse.ArgumentParser):
     """argparse that reports usage errors as one line (no usage dump) and exit code 2."""
 
     def error(self, message: str) -> None:  # noqa: D401 - argparse hook
-        raise RtaError(f"{self.prog}: {message}")
+        # "rtanalyzer: error:" is printed in front already: name only the sub-command, and where
+        # the options are explained.
+        command = self.prog.removeprefix("rtanalyzer").strip()
+        text = f"{command}: {message}" if command else message
+        raise RtaError(f"{text} (see: {self.prog} --help)")
 
 
 def build_parser() -> argparse.ArgumentParser:

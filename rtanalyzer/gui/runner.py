@@ -17,6 +17,7 @@ from collections import deque
 from PyQt6.QtCore import QObject, QTimer, pyqtSignal
 
 from rtanalyzer.gui.frames import DisplayPrep
+from rtanalyzer.live.engine import FILLING
 from rtanalyzer.live.session import SessionConfig, build_engine
 
 DRAIN_MS = 40  # 25 ticks/s: the queue is emptied at least as fast as readouts come
@@ -178,7 +179,7 @@ class SessionRunner(QObject):
             except queue.Empty:
                 break
             self._held = readout
-            if readout.result is not None or readout.error not in ("waiting for audio",):
+            if readout.result is not None or readout.error != FILLING:
                 self._arrivals.append(readout.t)  # the engine's own clock: the rate it makes them at
         now = time.monotonic()
         if now - self._last_shown < 1.0 / self.display_hz - DRAIN_MS / 2000.0:

@@ -32,6 +32,8 @@ DEFAULT_UPDATE_HZ = 20.0
 # within two readouts, long enough for bins of about 12 Hz at 48 kHz.
 LIVE_WINDOW_S = 0.085
 QUEUE_LENGTH = 64
+# The readout's error until the ring holds a whole analysis window (audio may be arriving).
+FILLING = "filling the analysis window"
 
 
 def live_nfft(rate_hz: float, resolution_hz: float | None = None) -> int:
@@ -249,7 +251,7 @@ class LiveEngine:
         state = self.source.state
         xruns = self.source.counters.as_dict()
         if window is None:
-            return Readout(self.measurement.name, time.monotonic(), end, None, "waiting for audio", self.meters.as_dict(), xruns, state)
+            return Readout(self.measurement.name, time.monotonic(), end, None, FILLING, self.meters.as_dict(), xruns, state)
         settings, sweep, usable = self._drive_settings(end)
         if sweep is not None and sweep["step"] != self._last_step:
             self.spectrum.reset()  # a new step: do not average across tones
@@ -267,8 +269,8 @@ class LiveEngine:
             result = self.calibration.finish(self.measurement.measure(signal, settings, **kwargs).to_json(), signal)
         except RtaError as exc:
             error = str(exc)
-        if result is not None and self.best is not None:
-            self.best.update(result)
+        if result is not None and self.best is not None and sweep is None:
+            self.best.update(result)  # a sweep's steps are different tones, not trims of one
         finished = time.perf_counter()
         return Readout(
             self.measurement.name,
@@ -279,7 +281,7 @@ class LiveEngine:
             self.meters.as_dict(),
             xruns,
             state,
-            self.best.as_dict() if self.best is not None else None,
+            self.best.as_dict() if self.best is not None and sweep is None else None,
             sweep,
             {"dsp_s": dsp_done - started, "measure_s": finished - dsp_done},
             spectrum,

@@ -152,6 +152,9 @@ def plan_settings(config: SessionConfig, measurement: str) -> dict[str, Any]:
     if config.source == "sim":
         carrier = config.knobs.carrier_offset_hz if carrier is None else carrier
         wanted = wanted or config.knobs.wanted_side
+    if carrier is not None and not config.iq and carrier <= 0 and measurement != "quadrature":
+        raise RtaError(f"--carrier {carrier:g}: in a one-channel capture the carrier lands at a positive audio "
+                       "frequency (e.g. --carrier 4000); a negative one needs --iq")
     settings: dict[str, Any] = {"carrier": carrier, "wanted": wanted or "auto"}
     if config.resolution_hz is not None:
         settings["resolution"] = config.resolution_hz

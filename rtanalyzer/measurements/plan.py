@@ -155,6 +155,11 @@ def _plan_problem(spectrum: Spectrum, request: PlanRequest, side: int) -> PlanEr
 
 def lock_with_carrier(spectrum: Spectrum, request: PlanRequest) -> Lock:
     """Lock when the carrier offset is given: search each side's wanted places, keep the stronger."""
+    if not spectrum.is_complex and request.carrier_hz <= 0:
+        raise PlanError(
+            f"--carrier {request.carrier_hz:g}: in a one-channel capture the carrier lands at a positive audio "
+            "frequency (where the receiver puts it, e.g. --carrier 4000); a negative one needs an I/Q capture (--iq)"
+        )
     half = _search_half_width(request)
     usable = tuple(s for s in _sides(request) if _plan_problem(spectrum, request, s) is None)
     if not usable:
