@@ -132,7 +132,7 @@ def test_cli_live_runs_the_network_measurement(capsys):
                  "--band", "300", "3000", "--count", "8", "--seconds", "1.2"])
     out = capsys.readouterr().out
     assert code == 0
-    assert "phase I-Q" in out and " us at " in out and "band 300-3000 Hz" in out
+    assert "phase I-Q" in out and " µs at " in out and "band 300-3000 Hz" in out
 
 
 def test_multitone_sideband_live_is_one_point_per_tone():

@@ -174,3 +174,11 @@ def test_the_trimmed_figure_is_the_worst_inside_the_band_when_there_is_one():
     b = BestTracker.for_measurement("sideband")
     b.update(inside)
     assert b.as_dict()["value"] == 35.0
+
+
+def test_a_clipped_readout_is_not_a_best():
+    # Figures from a clipped input are not what a trim reached (common practice, no source).
+    b = BestTracker.for_measurement("sideband")
+    b.update({"worst_sideband_suppression_db": 30.0})
+    b.update({"worst_sideband_suppression_db": 80.0, "clipped": True})
+    assert b.as_dict()["best"] == 30.0 and b.as_dict()["value"] == 30.0

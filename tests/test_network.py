@@ -126,3 +126,17 @@ def test_cli_bad_network_file_is_one_line(tmp_path, capsys):
     code = main(["network", str(bad)])
     err = capsys.readouterr().err
     assert code == 2 and err.count("\n") == 1 and "bad.network:1" in err
+
+
+def test_the_simulated_network_is_driven_at_the_generators_level():
+    # A two-tone at -6 dBFS PEP (PEP = A1 + A2 for two tones, each 6.02 dB below it) through the
+    # stand-in network must peak near -6 dBFS on each output, not 6 dB above (an all-pass network
+    # keeps each tone's amplitude; only the pair's relative phase moves the envelope's peak).
+    from rtanalyzer.generator.signals import TwoTone
+    from rtanalyzer.sources.bench.knobs import BenchKnobs
+    from rtanalyzer.sources.network_source import NetworkSource
+
+    src = NetworkSource(BenchKnobs(amplitude_trim_db=0.0), TwoTone(700.0, 1900.0, -6.0), 48000.0)
+    out = np.concatenate([src.render_block(4800) for _ in range(10)])
+    peaks_db = 20 * np.log10(np.max(np.abs(out), axis=0))
+    assert np.all(peaks_db < -5.9) and np.all(peaks_db > -6.5)

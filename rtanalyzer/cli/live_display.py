@@ -43,8 +43,8 @@ def _quadrature_lines(r: dict) -> list[str]:
     f = top["frequency_hz"]
     err_us = top["phase_error_deg"] / (360.0 * f) * 1e6
     lines = [
-        f"phase I-Q    {top['phase_difference_deg']:.2f} deg = {top['time_offset_us']:.1f} us at {f:.1f} Hz"
-        f"   error {top['phase_error_deg']:+.2f} deg ({err_us:+.2f} us)",
+        f"phase I-Q    {top['phase_difference_deg']:.2f}° = {top['time_offset_us']:.1f} µs at {f:.1f} Hz"
+        f"   error {top['phase_error_deg']:+.2f}° ({err_us:+.2f} µs)",
         f"ratio Q/I    {top['amplitude_ratio_db']:+.3f} dB   predicted suppression {top['predicted_suppression_db']:.1f} dB",
     ]
     band = r.get("band") or {}

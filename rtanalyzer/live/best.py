@@ -49,6 +49,8 @@ class BestTracker:
         return cls(key, larger, measurement=name)
 
     def update(self, result: dict) -> None:
+        if result.get("clipped"):
+            return  # figures from a clipped input are not a trim's result
         value = figure_value(self.measurement, result) if self.measurement else result.get(self.key)
         if value is None:
             return

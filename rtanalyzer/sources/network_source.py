@@ -18,7 +18,8 @@ from __future__ import annotations
 import numpy as np
 
 from rtanalyzer.generator.generator import Generator
-from rtanalyzer.generator.signals import Multitone, Sweep
+from rtanalyzer.generator.signals import Sweep
+from rtanalyzer.generator.voices import voice_for
 from rtanalyzer.generator.sweep import SweepPlan
 from rtanalyzer.sources.bench.knobs import BenchKnobs
 from rtanalyzer.sources.bench.network import path_responses
@@ -79,17 +80,19 @@ class NetworkSource(PacedSource):
         self._signal = signal
         self._start_frame = frame
         self._plan = SweepPlan.for_sweep(signal, self.rate_hz, 0) if isinstance(signal, Sweep) else None
-        tones, levels = tones_of(signal)
+        # The generator's own amplitudes and phases (a two-tone's PEP, a multitone's Schroeder
+        # phases), so the network is driven exactly as the generator would drive it.
+        voice = voice_for(signal)
         peak = 10.0 ** (signal.level_dbfs / 20.0)
-        if isinstance(signal, Multitone):
-            peak /= len(tones)  # equal tones that cannot add past the signal's peak
-        self._tones = np.asarray(tones, dtype=np.float64)
-        self._amps = peak * 10.0 ** (np.asarray(levels, dtype=np.float64) / 20.0)
+        self._tones = np.asarray(voice.frequencies_hz, dtype=np.float64)
+        self._amps = peak * np.asarray(voice.amplitudes[0], dtype=np.float64)
+        self._phases = np.asarray(voice.phases_rad[0], dtype=np.float64)
 
-    def _render(self, tones: np.ndarray, amps: np.ndarray, first: int, frames: int) -> np.ndarray:
+    def _render(self, tones: np.ndarray, amps: np.ndarray, first: int, frames: int,
+                phases: np.ndarray | None = None) -> np.ndarray:
         t = (first + np.arange(frames)) / self.rate_hz
         h_i, h_q = path_responses(tones, self._knobs)
-        phase = 2.0 * np.pi * np.outer(t, tones)
+        phase = 2.0 * np.pi * np.outer(t, tones) + (0.0 if phases is None else phases)
         out = np.empty((frames, 2))
         out[:, 0] = (amps * np.abs(h_i) * np.cos(phase + np.angle(h_i))).sum(axis=1)
         out[:, 1] = (amps * np.abs(h_q) * np.cos(phase + np.angle(h_q))).sum(axis=1)
@@ -104,7 +107,7 @@ class NetworkSource(PacedSource):
             self._knobs, self._pending_knobs = self._pending_knobs, None
         first = self.ring.written
         if self._plan is None:
-            return self._render(self._tones, self._amps, first, frames)
+            return self._render(self._tones, self._amps, first, frames, self._phases)
         out = np.empty((frames, 2))
         done = 0
         while done < frames:
