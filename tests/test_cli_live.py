@@ -251,3 +251,12 @@ def test_piped_sweep_lines_carry_figures_and_their_step(capsys):
     lines = [line for line in out.splitlines() if line.startswith("sweep step")]
     assert code == 0 and len(lines) >= 2
     assert all("opposite sideband" in line and " dB" in line for line in lines)
+
+
+@pytest.mark.parametrize("argv,needle", [
+    (["--tone", "-5"], "--tone: frequency_hz = -5.0 is out of range"),
+    (["--generate", "multitone", "--band", "-200", "3000"], "--band: low_hz = -200.0 is out of range"),
+])
+def test_a_bad_signal_option_is_named_as_typed(capsys, argv, needle):
+    code, out, err = run(["live", "--headless", "--source", "sim", "--seconds", "1", *argv], capsys)
+    assert_one_error_line(code, out, err, needle)

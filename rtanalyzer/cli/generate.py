@@ -8,6 +8,7 @@ the generator's ceiling (-0.5 dBFS).
 from __future__ import annotations
 
 import argparse
+import re
 import math
 
 from rtanalyzer.generator.errors import GeneratorError, OutputDeviceError
@@ -157,7 +158,11 @@ def _with_option(exc: GeneratorError, kind: str) -> GeneratorError:
     found = [(text.find(field), option) for field, option in options.items() if field in text]
     if not found:
         return exc
-    return type(exc)(f"{text} (set by {min(found)[1]})")
+    option = min(found)[1]
+    # "Multitone.spread low_hz = -200.0 is out of range; ..." -> "--band: low_hz = -200.0 is ..."
+    # (the option the user typed first, not the class behind it)
+    owner = re.match(r"[A-Z]\w*(?:\.\w+)? (?=\w+ = )", text)
+    return type(exc)(f"{option}: {text[owner.end():] if owner else text}")
 
 
 def render_signal(signal, rate_hz: float, seconds: float):

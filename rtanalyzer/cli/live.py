@@ -97,9 +97,15 @@ def _signal(args: argparse.Namespace, default_kind: str | None):
     if kind is None:
         return None
     args.kind = kind
-    if kind in ("tone", "quadrature") and args.freq is None and args.tone:
+    from_tone = kind in ("tone", "quadrature") and args.freq is None and bool(args.tone)
+    if from_tone:
         args.freq = args.tone[0]
-    return build_signal(args)
+    try:
+        return build_signal(args)
+    except RtaError as exc:
+        if from_tone and str(exc).startswith("--freq"):  # the user typed --tone
+            raise type(exc)("--tone" + str(exc)[len("--freq"):]) from None
+        raise
 
 
 def _trim_band(band) -> tuple[float, float] | None:
