@@ -276,3 +276,15 @@ def test_plan_errors_surface_from_measure():
     x = synth([(3500.0, -6.0, 0.2)], RATE, 1.0, NOISE)
     with pytest.raises(PlanError, match="fold"):
         SidebandMeasurement().measure(capture_of(x).view(), {"tone": [2000.0], "carrier": 1500.0})
+
+
+def test_a_wrong_tone_locking_onto_a_weak_product_is_questioned(capsys):
+    # The exciter plays 1000 Hz (wanted at 5000 Hz, -6 dBFS); --tone 1500 finds only a product
+    # 50 dB down at 5500 Hz: the figure is printed, with a warning that questions --tone.
+    from rtanalyzer.measurements.sideband import SidebandMeasurement
+    from rtanalyzer.sources.capture import Signal
+
+    t = np.arange(96000) / 48000
+    x = 0.5 * np.cos(2 * np.pi * 5000 * t) + 0.0016 * np.cos(2 * np.pi * 5500 * t) + 1e-4 * np.cos(2 * np.pi * 2500 * t)
+    r = SidebandMeasurement().measure(Signal(x, 48000.0), {"tone": [1500.0], "carrier": 4000.0})
+    assert any("is --tone right?" in w and "5000.0 Hz" in w for w in r.warnings)

@@ -177,11 +177,23 @@ def lock_with_carrier(spectrum: Spectrum, request: PlanRequest) -> Lock:
         )
         raise PlanError(
             f"no tone stands above the noise within +/-{half:g} Hz of {where}: check --carrier, "
-            "--tone and that the exciter is driven"
+            f"--tone and that the exciter is driven ({strongest_text(spectrum)})"
         )
     nominal, side, _, found = best
     offset = found.frequency_hz - nominal
     return Lock(request.carrier_hz + offset, side, tuple(request.tones_hz), offset, request.residues)
+
+
+def strongest_text(spectrum: Spectrum, count: int = 3) -> str:
+    """The strongest peaks of the capture in words, for an error that says a tone was not found."""
+    edge = guard_hz(spectrum)
+    lo = -spectrum.nyquist_hz + edge if spectrum.is_complex else edge
+    peaks = local_peaks(spectrum, lo, spectrum.nyquist_hz - edge)[:count]
+    if not len(peaks):
+        return "the capture holds no peak at all"
+    found = [refine_peak(spectrum, int(k)) for k in peaks]
+    return "strongest peaks: " + ", ".join(
+        f"{t.frequency_hz:.1f} Hz ({10 * np.log10(max(t.power, 1e-30)):.1f} dBFS)" for t in found)
 
 
 def strongest_tone(spectrum: Spectrum) -> ToneEstimate:

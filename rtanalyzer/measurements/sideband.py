@@ -16,10 +16,10 @@ from typing import Any, Mapping, Sequence
 import numpy as np
 
 from rtanalyzer.dsp.spectrum import Spectrum
-from rtanalyzer.errors import MeasurementError
+from rtanalyzer.errors import MeasurementError, PlanError
 from rtanalyzer.measurements.base import Parameter, settings_with_defaults
 from rtanalyzer.measurements.component import Component, measure_at, plan_floor, rounded, spectrum_of
-from rtanalyzer.measurements.plan import PlanRequest, lock
+from rtanalyzer.measurements.plan import PlanRequest, lock, strongest_tone
 from rtanalyzer.measurements.warnings import capture_warnings, lock_warnings, resolution_warnings
 from rtanalyzer.sources.capture import Signal
 
@@ -30,6 +30,9 @@ PLAN_PARAMETERS = (
     Parameter("resolution", float, "analysis bin width to aim for", 1.0, unit="Hz"),
 )
 DEFAULT_BAND_HZ = (300.0, 3000.0)
+# A wanted sideband this far below the capture's strongest component is probably not the
+# exciter's output for that tone (a wrong --tone locking onto a distortion product).
+MUCH_WEAKER_DB = 20.0
 
 
 def check_band(band: Sequence[Any]) -> tuple[float, float]:
@@ -214,7 +217,18 @@ class SidebandMeasurement:
         warnings = [*capture_warnings(signal), *lock_warnings(locked, spectrum)]
         if offline:
             warnings += resolution_warnings(spectrum)
+        try:
+            loudest = strongest_tone(spectrum)
+        except PlanError:
+            loudest = None
         for p in points:
+            if loudest is not None and p.wanted.detected and \
+                    10 * np.log10(loudest.power) - p.wanted.level_dbfs > MUCH_WEAKER_DB:
+                warnings.append(
+                    f"the wanted sideband of the {p.tone_hz:g} Hz tone ({p.wanted.level_dbfs:.1f} dBFS) is "
+                    f"{10 * np.log10(loudest.power) - p.wanted.level_dbfs:.0f} dB below the capture's strongest "
+                    f"component at {loudest.frequency_hz:.1f} Hz: is --tone right?"
+                )
             if not p.wanted.detected:
                 warnings.append(
                     f"the wanted sideband of the {p.tone_hz:g} Hz tone is not above the noise at "

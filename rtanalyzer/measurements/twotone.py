@@ -25,6 +25,7 @@ from rtanalyzer.measurements.plan import (
     guard_hz,
     lock_with_carrier,
     out_of_range,
+    strongest_text,
     strongest_tone,
 )
 from rtanalyzer.measurements.sideband import PLAN_PARAMETERS
@@ -203,7 +204,8 @@ class TwoToneMeasurement:
         tones = tuple(measure_at(spectrum, f, tuple(places)) for f in places)
         for t in tones:
             if not t.detected:
-                raise PlanError(f"no tone stands above the noise at {t.frequency_hz:.1f} Hz")
+                raise PlanError(f"no tone stands above the noise at {t.frequency_hz:.1f} Hz: check --tones and "
+                                f"--carrier ({strongest_text(spectrum)})")
         low, high = (t.frequency_hz for t in tones)
         spacing = high - low
         context = _context(lock)
