@@ -195,3 +195,16 @@ def test_no_partner_tone_is_a_plan_error():
     with pytest.raises(PlanError) as info:
         TwoToneMeasurement().measure(capture_of(x).view(), {"tones": [1000.0, 1200.0]})
     assert "\n" not in str(info.value)
+
+
+def test_a_wrong_tone_names_what_the_capture_holds():
+    # Tones at 700 and 1900 Hz above a 4000 Hz carrier; asked for 700 and 2000 Hz, the error says
+    # where the strongest peaks really are, so the builder can correct --tones.
+    from rtanalyzer.errors import PlanError
+    from rtanalyzer.measurements.twotone import TwoToneMeasurement
+    from rtanalyzer.sources.capture import Signal
+
+    t = np.arange(96000) / 48000
+    x = 0.25 * np.cos(2 * np.pi * 4700 * t) + 0.25 * np.cos(2 * np.pi * 5900 * t)
+    with pytest.raises(PlanError, match=r"check --tones.*strongest peaks: (4700\.0|5900\.0) Hz"):
+        TwoToneMeasurement().measure(Signal(x, 48000.0), {"tones": [700.0, 2000.0], "carrier": 4000.0})
