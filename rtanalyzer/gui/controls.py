@@ -298,7 +298,9 @@ class ControlsPanel(QWidget):
         self.averages.setObjectName("averages")
         self.averages.setRange(1, 64)
         self.averages.setKeyboardTracking(False)
-        self.averages.setSuffix(" spectra")
+        self.averages.setSuffix(" spectrum")
+        self.averages.setSpecialValueText("none (1 spectrum)")  # 1 is no averaging
+        self.averages.valueChanged.connect(lambda v: self.averages.setSuffix(" spectrum" if v == 1 else " spectra"))
         self.averages.valueChanged.connect(lambda _: self._emit("averages"))
         form.addRow("Averaging", self.averages)
         form.addRow(_note("More averaging: steadier figures, slower response to a trim."))
