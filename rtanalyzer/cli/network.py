@@ -96,7 +96,7 @@ def _text(r: dict) -> list[str]:
                          f"design {p['design_phase_difference_deg']:.3f}°  {p['difference_deg'] + 0.0:+.3f}°  "
                          f"Q/I {p['amplitude_ratio_db']:+.3f} dB")
         if m["mean_difference_deg"] is not None:
-            lines.append(f"mean difference {m['mean_difference_deg']:+.3f}° (spread {m['spread_deg']:.3f}°): a "
+            lines.append(f"mean difference {m['mean_difference_deg']:+.3f}° (spread {m['spread_deg']:.3f}° peak to peak): a "
                          "constant difference is trim or wiring; a spread means parts differ from the list")
     if r["calibration"]:
         lines.append("calibration: " + ", ".join(r["calibration"]))
