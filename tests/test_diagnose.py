@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import re
 from pathlib import Path
 
 import numpy as np
@@ -46,8 +47,15 @@ def test_constant_errors_are_found_with_their_direction():
     assert d["phase_trim_deg"] == pytest.approx(-0.4, abs=1e-9)
     assert d["advice"][0] == "amplitude: raise Q by 0.15 dB (or lower I by as much)"
     assert d["advice"][1].startswith("phase: bring I and Q 0.40° closer together")
-    # With nothing frequency-dependent left, trims reach the relation's cap (perfect balance).
-    assert d["after_trims_worst_predicted_suppression_db"] > 100
+    # 0.15 dB alone allows 41.3 dB, 0.4 degree alone 49.1 dB (image-rejection relation): amplitude
+    assert d["amplitude_alone_limit_db"] == pytest.approx(float(irr(0.15, 0.0)), abs=0.01)
+    assert d["limited_now_by"] == "amplitude" and d["now_worst_is_lower_bound"] is False
+    # Nothing frequency-dependent left: after the trims only the points' resolution (4 decimals
+    # in these old-style points) bounds the result, and it is said as a bound, never a number.
+    assert d["ripple_above_noise"] is False and d["after_trims_worst_is_lower_bound"] is True
+    assert 90 < d["after_trims_worst_predicted_suppression_db"] < 150
+    assert not any("limits you to" in a for a in d["advice"])
+    assert any(a.startswith("phase: no ripple above the noise") for a in d["advice"])
 
 
 def test_network_ripple_is_the_limit_no_trim_fixes():
@@ -60,6 +68,78 @@ def test_network_ripple_is_the_limit_no_trim_fixes():
     assert d["after_trims_worst_predicted_suppression_db"] == pytest.approx(float(irr(0.0, half)), abs=0.01)
     assert any("network's ripple limits you to" in a and "no trim fixes that" in a for a in d["advice"])
     assert d["advice"][0] == "amplitude: lower Q by 0.05 dB (or raise I by as much)"
+    # the measured ripple and the design's, apart; here the points follow the design
+    design = allpass_deg(FREQS, I_CHAIN) - allpass_deg(FREQS, Q_CHAIN)
+    design_half = (np.abs(design).max() - np.abs(design).min()) / 2
+    assert d["points_follow_design"] is True and d["ripple_above_noise"] is True
+    assert d["ripple_design_deg"] == pytest.approx(design_half, abs=1e-4)
+    assert d["ripple_measured_deg"] == pytest.approx(design_half, abs=1e-4)
+    assert any("the points follow the design" in a for a in d["advice"])
+
+
+def allpass_deg(f, chain):
+    """First-order all-pass phase, -2·atan(2πfRC) per section (textbook circuit theory)."""
+    return sum(np.degrees(-2 * np.arctan(2 * np.pi * f * r * c)) for r, c in chain)
+
+
+# examples/bench.network, written out: I 1.2k 7.5k 22k 68k, Q 3.9k 13k 36k 220k, 10 nF throughout
+I_CHAIN = ((1_200.0, 10e-9), (7_500.0, 10e-9), (22_000.0, 10e-9), (68_000.0, 10e-9))
+Q_CHAIN = ((3_900.0, 10e-9), (13_000.0, 10e-9), (36_000.0, 10e-9), (220_000.0, 10e-9))
+
+
+def noisy_points(ratio_db, offset_deg, sigma_deg=1e-3, seed=0, ripple_deg=None):
+    """Points as this version saves them: errors measured with noise of sigma (phase, degrees) and
+    the same relative spread on the amplitude, each with its uncertainty."""
+    rng = np.random.default_rng(seed)
+    sigma_db = 20 / np.log(10) * np.radians(sigma_deg)
+    ripple = np.zeros(FREQS.size) if ripple_deg is None else ripple_deg
+    err = offset_deg + ripple + rng.normal(0, sigma_deg, FREQS.size)
+    ratio = ratio_db + rng.normal(0, sigma_db, FREQS.size)
+    from rtanalyzer.dsp.quadrature import noise_limited_suppression
+
+    value, bound = noise_limited_suppression(ratio, err, sigma_db, sigma_deg)
+    return [{"frequency_hz": float(f), "phase_difference_deg": 90.0 + float(e), "amplitude_ratio_db": float(r),
+             "phase_uncertainty_deg": sigma_deg, "amplitude_uncertainty_db": sigma_db,
+             "predicted_suppression_db": float(v), "predicted_suppression_is_bound": bool(b)}
+            for f, e, r, v, b in zip(FREQS, err, ratio, value, bound)]
+
+
+def test_errors_within_the_noise_name_no_limit_and_give_bounds():
+    # Perfect quadrature measured to ±0.001°: no figure may be a number, no limiter named, no
+    # ripple limit, and every bound below what 3σ errors allow (image-rejection relation).
+    d = diagnose_quadrature(noisy_points(0.0, 0.0))
+    ceiling = float(irr(3 * 20 / np.log(10) * np.radians(1e-3), 3e-3))
+    assert d["limited_now_by"] is None
+    for key in ("now_worst", "amplitude_alone", "phase_alone", "after_trims_worst"):
+        flag = f"{key}_is_lower_bound"
+        assert d[flag] is True, flag
+    for key in ("now_worst_predicted_suppression_db", "phase_alone_limit_db", "after_trims_worst_predicted_suppression_db"):
+        assert d[key] < ceiling, key
+    assert d["summary"].startswith("no error above the noise: at least ") and d["summary"].endswith("across the band")
+    assert not any("limits you to" in a or "limits now" in a for a in d["advice"])
+    assert d["advice"][0].startswith("amplitude: balanced within the noise")
+    assert d["advice"][1].startswith("phase: centred within the noise")
+
+
+def test_a_network_the_points_do_not_follow_is_reported_apart():
+    # Flat measured points against the example network (whose ripple is ±0.36°): the design's
+    # ripple is stated as the design's, not as the limit of what was measured.
+    net = read_network(EXAMPLE)
+    d = diagnose_quadrature(noisy_points(0.0, 0.0), net)
+    design = allpass_deg(FREQS, I_CHAIN) - allpass_deg(FREQS, Q_CHAIN)
+    assert d["ripple_design_deg"] == pytest.approx((np.abs(design).max() - np.abs(design).min()) / 2, abs=1e-4)
+    assert d["ripple_measured_deg"] < 0.01 and d["points_follow_design"] is False
+    assert d["ripple_source"] == "residual" and d["limited_now_by"] is None
+    assert not any("network's ripple limits you" in a for a in d["advice"])
+    assert any("do not follow the design's ripple" in a for a in d["advice"])
+    # the same points riding on the design's ripple follow it, and then it limits
+    ripple = np.abs(design) - 90
+    d = diagnose_quadrature(noisy_points(0.0, 0.0, ripple_deg=ripple), net)
+    assert d["points_follow_design"] is True and d["ripple_source"] == "network"
+    assert any("network's ripple limits you to" in a for a in d["advice"])
+    assert d["after_trims_worst_is_lower_bound"] is False
+    assert d["after_trims_worst_predicted_suppression_db"] == pytest.approx(
+        float(irr(0.0, (ripple.max() - ripple.min()) / 2)), abs=0.02)  # minimax: half the range
 
 
 def test_which_error_limits_now():
@@ -69,6 +149,30 @@ def test_which_error_limits_now():
     assert d["phase_alone_limit_db"] == pytest.approx(41.2, abs=0.05)
     assert d["limited_now_by"] == "phase"
     assert d["now_worst_predicted_suppression_db"] == pytest.approx(39.6, abs=0.05)
+
+
+@pytest.mark.parametrize("suppression_db,amplitude_db,phase_deg", [
+    (32.9, 0.393, 2.595),  # the review's figures for 32.9 dB (exact relation, ε = 0 and g = 1)
+    (22.3, 1.334, 8.776),  # the review's amplitude figure for 22.3 dB
+])
+def test_sideband_error_as_amplitude_or_phase_is_read_exactly(suppression_db, amplitude_db, phase_deg):
+    points = [{"tone_hz": 1000.0, "sideband_suppression_db": suppression_db, "unwanted_detected": True}]
+    d = diagnose_sideband(points)
+    assert d["error_as_amplitude_db"] == pytest.approx(amplitude_db, abs=0.003)
+    assert d["error_as_phase_deg"] == pytest.approx(phase_deg, abs=0.002)
+    # and back through the relation itself (Razavi), to the figure we started from
+    assert float(irr(d["error_as_amplitude_db"], 0.0)) == pytest.approx(suppression_db, abs=0.01)
+    assert float(irr(0.0, d["error_as_phase_deg"])) == pytest.approx(suppression_db, abs=0.01)
+    said = re.search(r"or (\d+\.\d{3}) dB if it is all amplitude", d["advice"][0])
+    assert said and float(said.group(1)) == pytest.approx(amplitude_db, abs=0.003)
+
+
+def test_sideband_bound_gives_errors_of_at_most():
+    points = [{"tone_hz": 1000.0, "sideband_suppression_db": 60.0, "unwanted_detected": False}]
+    d = diagnose_sideband(points)
+    assert d["worst_is_lower_bound"] is True
+    assert d["advice"][0].startswith("worst at least 60.0 dB at 1000 Hz: an error of at most ")
+    assert "at most" in d["advice"][0].split(", or ")[1]
 
 
 def test_sideband_magnitudes_cannot_tell_the_sign():
@@ -173,3 +277,25 @@ def test_sideband_variation_counts_only_measured_points():
     d = diagnose_sideband(points)
     assert d["variation_db"] == 0.5
     assert not any("varies" in line for line in d["advice"])
+
+
+def test_cli_diagnose_an_error_free_capture_says_bounds(tmp_path, capsys):
+    # Perfect quadrature in white noise (float file): the true suppression is unbounded, so the
+    # diagnosis may only give bounds, name no limiter, and the network's design ripple is the
+    # design's, not a limit of what was measured.
+    t = np.arange(2 * RATE) / RATE
+    noise = np.random.default_rng(3).normal(0.0, 1e-5, (2, t.size))
+    left = sum(0.2 * np.cos(2 * np.pi * f * t) for f in (400.0, 800.0, 1600.0, 2400.0)) + noise[0]
+    right = sum(0.2 * np.sin(2 * np.pi * f * t) for f in (400.0, 800.0, 1600.0, 2400.0)) + noise[1]
+    wav = write_wav(tmp_path / "q.wav", np.column_stack([left, right]), subtype="FLOAT")
+    code = main(["diagnose", str(wav)])
+    out = capsys.readouterr()
+    assert code == 0 and out.err == ""
+    assert "now: no error above the noise: at least " in out.out and "limits now" not in out.out
+    assert "limits you to" not in out.out and "150.0" not in out.out and "200.0" not in out.out
+    assert "after both trims: worst at least " in out.out
+    code = main(["diagnose", str(wav), "--network", str(EXAMPLE), "--json"])
+    d = json.loads(capsys.readouterr().out)
+    assert d["points_follow_design"] is False and d["ripple_design_deg"] > 0.3 and d["ripple_measured_deg"] < 0.001
+    assert d["limited_now_by"] is None and d["now_worst_is_lower_bound"] is True
+    assert not any("network's ripple limits you" in a for a in d["advice"])

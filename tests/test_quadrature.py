@@ -300,3 +300,100 @@ def test_noise_spread_matches_the_reported_uncertainty_and_the_crlb_yardstick():
     spread = float(np.std(errors))
     assert spread == pytest.approx(float(np.mean(reported)), rel=0.3)
     assert crlb <= spread * 1.3 and spread <= 1.6 * crlb  # within the window's sqrt(ENBW) of the bound
+
+
+# ---- figures limited by noise are bounds --------------------------------------------------
+
+
+def test_image_rejection_of_tiny_errors_follows_the_small_error_form():
+    # Small-error form of the image-rejection relation, IRR ≈ 4 / ((ΔA/A)² + θ²) (Razavi, RF
+    # Microelectronics, image-reject receivers): the exact relation must meet it for tiny errors
+    # instead of rounding to "perfect" (cos ε is 1.0 in float64 below ε ≈ 1e-8).
+    for eps in (1e-9, 1e-7, 1e-5):
+        assert float(image_rejection_db(1.0, eps)) == pytest.approx(10 * np.log10(4 / eps**2), abs=1e-4)
+        delta = eps  # an amplitude ratio 1 + δ alone
+        assert float(image_rejection_db(1.0 + delta, 0.0)) == pytest.approx(10 * np.log10(4 / delta**2), abs=1e-3)
+
+
+def test_noise_criterion_false_alarms_and_coverage_match_the_gaussian_tails():
+    # Yardsticks: for zero true error and Gaussian noise of σ on both figures (σ_δ = σ_ε, as the
+    # DTFT gives), |error|² / σ² is chi-square with 2 degrees of freedom, so an error vector
+    # longer than k·√2·σ (the criterion) occurs with probability exp(-k²) (Rayleigh tail); and
+    # each |true| ≤ |measured| + kσ holds with probability erf(k/√2) (normal two-sided), both
+    # at once erf(k/√2)² (= 0.9946 at k = 3), so the bound holds at least that often.
+    from math import erf, sqrt
+
+    from rtanalyzer.dsp.quadrature import noise_limited_suppression
+
+    rng = np.random.default_rng(5)
+    n, sigma_rad = 200_000, 1e-4
+    sigma_deg, sigma_db = np.degrees(sigma_rad), 20 / np.log(10) * sigma_rad
+    noise = rng.normal(0.0, 1.0, (2, n))
+    _, bound = noise_limited_suppression(noise[0] * sigma_db, noise[1] * sigma_deg, sigma_db, sigma_deg, sigmas=2.0)
+    assert 1.0 - bound.mean() == pytest.approx(np.exp(-4.0), rel=0.1)
+    # true errors of 1σ in amplitude and 2σ in phase, measured with that noise
+    true_db, true_deg = 1.0 * sigma_db, 2.0 * sigma_deg
+    value, bound = noise_limited_suppression(true_db + noise[0] * sigma_db, true_deg + noise[1] * sigma_deg,
+                                             sigma_db, sigma_deg)
+    truth = float(image_rejection_db(10 ** (true_db / 20), np.radians(true_deg)))
+    assert bound.mean() > 0.5  # mostly within the noise at k = 3
+    assert np.mean(value[bound] <= truth + 1e-9) >= erf(3 / sqrt(2)) ** 2 - 0.002
+
+
+def _noisy_pair(freqs, diff_deg, ratio_db, sigma, seconds=2.0, level=0.3, seed=1):
+    """Float captures with white Gaussian noise of known σ on each channel (no quantisation)."""
+    left, right = pair(freqs, diff_deg, ratio_db, seconds, level, seed, quantize=False)
+    noise = np.random.default_rng(seed + 100).normal(0.0, sigma, (2, left.size))
+    return left + noise[0], right + noise[1]
+
+
+def test_an_error_free_capture_reports_a_bound_not_a_number(tmp_path, capsys):
+    # Perfect quadrature in white noise: the true suppression is unbounded, so every figure must be
+    # a lower bound, below what the Cramér-Rao phase spread allows (Rife & Boorstyn 1974:
+    # var = 2σ²/(A²N) per channel, both channels add; a windowed estimate does no better).
+    amp, sigma = 0.3, 1e-4
+    left, right = _noisy_pair([500.0, 1000.0, 2000.0], 90.0, 0.0, sigma, level=amp)
+    r = measure_quadrature(signal_of(left, right)).to_json()
+    crlb_rad = np.sqrt(2 * 2 * sigma**2 / (amp**2 * left.size))
+    ceiling = 10 * np.log10(4 / (2 * crlb_rad**2))  # errors of 1σ in phase and amplitude
+    for p in r["points"]:
+        assert p["predicted_suppression_is_bound"] is True
+        assert 60.0 < p["predicted_suppression_db"] < ceiling
+    assert r["worst_is_lower_bound"] is True and r["band"]["worst_is_lower_bound"] is True
+    assert r["worst_predicted_suppression_db"] == min(p["predicted_suppression_db"] for p in r["points"])
+    wav = tmp_path / "q.wav"
+    sf.write(str(wav), np.column_stack([left, right]), RATE, subtype="FLOAT")
+    code, out, err = run(["analyze", "quadrature", wav], capsys)
+    assert code == 0 and err == ""
+    assert out.count("(limited by noise)") == 4  # the three points and the worst (all in the band)
+    assert "worst predicted suppression \u2265 " in out and "150.0" not in out and "200.0" not in out
+
+
+def test_an_error_above_the_noise_stays_a_figure():
+    # 0.5 degree and 0.05 dB measured in the same noise give the image-rejection relation's
+    # figure (Razavi, RF Microelectronics), written out here independently.
+    left, right = _noisy_pair([1000.0], 90.5, 0.05, 1e-4)
+    p = measure_quadrature(signal_of(left, right)).to_json()["points"][0]
+    g, c = 10 ** (0.05 / 20), np.cos(np.radians(0.5))
+    expected = 10 * np.log10((1 + 2 * g * c + g * g) / (1 - 2 * g * c + g * g))
+    assert p["predicted_suppression_is_bound"] is False
+    assert p["predicted_suppression_db"] == pytest.approx(expected, abs=0.02)
+
+
+def test_the_worst_point_is_a_bound_only_when_its_own_figure_is():
+    # A measured figure below a bound is the worst, and exact; a bound below every measured
+    # figure makes the worst a bound (the true worst lies between it and the lowest figure).
+    from rtanalyzer.measurements.quadrature import QuadraturePoint, QuadratureResult
+
+    def point(f, diff, ratio, sd):
+        return QuadraturePoint(f, -10.0, -10.0 + ratio, diff, sd, 20 / np.log(10) * np.radians(sd), 2.0)
+
+    clean = point(400.0, 90.00001, 0.0, 0.01)  # within the noise: at least ~60 dB
+    off = point(800.0, 91.0, 0.0, 0.001)  # 1 degree: 41.2 dB (check value above)
+    r = QuadratureResult(48000.0, (clean, off), -120.0, 1.0, (300.0, 3000.0), False, "stereo").to_json()
+    assert r["worst_frequency_hz"] == 800.0 and r["worst_is_lower_bound"] is False
+    assert r["worst_predicted_suppression_db"] == pytest.approx(41.2, abs=0.05)
+    r = QuadratureResult(48000.0, (clean, point(800.0, 90.0, 0.0, 0.0001)), -120.0, 1.0, (300.0, 3000.0), False,
+                         "stereo").to_json()
+    assert r["worst_frequency_hz"] == 400.0 and r["worst_is_lower_bound"] is True
+    assert r["band"]["worst_is_lower_bound"] is True

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import math
 from pathlib import Path
 
 from rtanalyzer.cli.output import emit
@@ -87,20 +88,33 @@ def run(args: argparse.Namespace) -> int:
     return 0
 
 
+def _figure(value: float, bound: bool | None) -> str:
+    """A suppression from a diagnosis; a lower bound (errors within their noise) says so."""
+    return f"at least {math.floor(value * 10.0) / 10.0:.1f} dB" if bound else f"{value:.1f} dB"
+
+
 def _text(r: dict) -> list[str]:
     lines = []
     if r["measurement"] == "probe":
         worst = r["worst_suppression_db"]
         lines.append("readings: " + " -> ".join(f"{w:.1f} dB" for w in worst) + f" (worst over {len(r['tones_hz'])} tones)")
     elif r["data"] == "quadrature":
+        amp = _figure(r["amplitude_alone_limit_db"], r.get("amplitude_alone_is_lower_bound"))
+        phase = _figure(r["phase_alone_limit_db"], r.get("phase_alone_is_lower_bound"))
+        worst = (f"{_figure(r['now_worst_predicted_suppression_db'], r.get('now_worst_is_lower_bound'))} at "
+                 f"{r['now_worst_frequency_hz']:.0f} Hz")
+        if r["limited_now_by"]:
+            now = (f"now: worst {worst}; amplitude alone would allow {amp}, phase alone {phase}: "
+                   f"{r['limited_now_by']} limits now")
+        else:
+            now = f"now: {r['summary']} (amplitude alone would allow {amp}, phase alone {phase})"
         lines += [
             f"{r['source']}: {r['points']} points in {r['band_hz'][0]:g}-{r['band_hz'][1]:g} Hz "
             f"(ripple from the {r['ripple_source']})",
-            f"now: worst {r['now_worst_predicted_suppression_db']:.1f} dB at {r['now_worst_frequency_hz']:.0f} Hz; "
-            f"amplitude alone would allow {r['amplitude_alone_limit_db']:.1f} dB, phase alone "
-            f"{r['phase_alone_limit_db']:.1f} dB: {r['limited_now_by']} limits now",
-            f"after both trims: worst {r['after_trims_worst_predicted_suppression_db']:.1f} dB at "
-            f"{r['after_trims_worst_frequency_hz']:.0f} Hz",
+            now,
+            f"after both trims: worst "
+            f"{_figure(r['after_trims_worst_predicted_suppression_db'], r.get('after_trims_worst_is_lower_bound'))} "
+            f"at {r['after_trims_worst_frequency_hz']:.0f} Hz",
         ]
     else:
         lines.append(f"{r['source']}: {r['points']} sideband points in {r['band_hz'][0]:g}-{r['band_hz'][1]:g} Hz")

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 from typing import Any, Callable
 
 
@@ -91,6 +92,11 @@ def twotone(r: dict[str, Any]) -> list[str]:
     return lines + _footer(r)
 
 
+def _predicted(value: float, bound: bool | None) -> str:
+    """A predicted suppression; a bound (errors within their noise) is written as one, rounded down."""
+    return f"\u2265 {math.floor(value * 10.0) / 10.0:.1f} dB (limited by noise)" if bound else f"{value:.1f} dB"
+
+
 def quadrature(r: dict[str, Any]) -> list[str]:
     lines = [
         f"{'tone':>10}  {'I - Q phase':>11}  {'as time':>11}  {'error':>9}  {'Q / I':>9}  predicted suppression"
@@ -100,15 +106,17 @@ def quadrature(r: dict[str, Any]) -> list[str]:
         lines.append(
             f"{p['frequency_hz']:>7.1f} Hz  {p['phase_difference_deg']:>10.3f}°  {p['time_offset_us']:>8.2f} µs  "
             f"{p['phase_error_deg']:>+8.3f}°  {p['amplitude_ratio_db']:>+6.3f} dB  "
-            f"{p['predicted_suppression_db']:.1f} dB{mark}"
+            f"{_predicted(p['predicted_suppression_db'], p.get('predicted_suppression_is_bound'))}{mark}"
         )
     if r["worst_predicted_suppression_db"] is not None and len(r["points"]) > 1:
-        lines.append(f"worst predicted suppression {r['worst_predicted_suppression_db']:.1f} dB at "
+        lines.append(f"worst predicted suppression "
+                     f"{_predicted(r['worst_predicted_suppression_db'], r.get('worst_is_lower_bound'))} at "
                      f"{r['worst_frequency_hz']:.1f} Hz")
     band = r["band"]
     if band["worst_predicted_suppression_db"] is not None and band["points"] < len(r["points"]):
         lines.append(f"in the band {band['low_hz']:g}-{band['high_hz']:g} Hz: worst "
-                     f"{band['worst_predicted_suppression_db']:.1f} dB at {band['worst_frequency_hz']:.1f} Hz")
+                     f"{_predicted(band['worst_predicted_suppression_db'], band.get('worst_is_lower_bound'))} at "
+                     f"{band['worst_frequency_hz']:.1f} Hz")
     if r.get("calibration"):
         lines.append("calibration: " + ", ".join(r["calibration"]))
     return lines + _footer(r)

@@ -3,7 +3,9 @@
 Two measurements have points across the audio band:
 
 - ``quadrature`` (the 90° network alone, left = I, right = Q): phase error, amplitude ratio and
-  the suppression those two errors alone allow, keyed by ``frequency_hz``;
+  the suppression those two errors alone allow, keyed by ``frequency_hz``. Where both errors are
+  within their noise (``predicted_suppression_is_bound``) the suppression is a lower bound:
+  "≥ X dB", a hollow triangle;
 - ``sideband`` (the whole exciter through the receiver): the measured opposite-sideband
   suppression and the wanted level, keyed by ``tone_hz``. Where the unwanted sideband is
   under the noise the suppression is a lower bound: it is written "≥ X dB" and drawn as a
@@ -15,6 +17,7 @@ owns the window and the state.
 
 from __future__ import annotations
 
+import math
 from typing import Any, Sequence
 
 import numpy as np
@@ -23,6 +26,11 @@ from rtanalyzer.gui.band_plot import PlotSpec
 from rtanalyzer.gui.plots import MINUS
 
 AT_LEAST = "\u2265 "
+
+
+def _down(value: float) -> float:
+    """A lower bound to one decimal, rounded down so that it stays one."""
+    return math.floor(value * 10.0) / 10.0
 
 
 def us_of(phase_deg: float, frequency_hz: float) -> float:
@@ -70,8 +78,9 @@ class BandMode:
         raise NotImplementedError
 
     def worst_text(self, w: dict[str, Any]) -> str:
-        bound = AT_LEAST if self.is_bound(w) else ""
-        return f"worst {bound}{self.score(w):.1f} dB at {w[self.fkey]:.0f} Hz"
+        if self.is_bound(w):
+            return f"worst {AT_LEAST}{_down(self.score(w)):.1f} dB at {w[self.fkey]:.0f} Hz"
+        return f"worst {self.score(w):.1f} dB at {w[self.fkey]:.0f} Hz"
 
     def worst_detail(self, w: dict[str, Any], inside: Sequence[dict[str, Any]], band: tuple[float, float]) -> str:
         raise NotImplementedError
@@ -95,14 +104,26 @@ class NetworkMode(BandMode):
     waiting = "waiting for the network's outputs"
     advice_title = "Which way to turn (points in the band)"
     fkey = "frequency_hz"
+    #: Added to each point for the plot: False where the suppression is only a lower bound
+    #: (``PlotSpec.bound_key`` reads False as a bound; the result itself says it the other way
+    #: round, ``predicted_suppression_is_bound``).
+    MEASURED_KEY = "predicted_suppression_measured"
     plots = (
         PlotSpec("Phase error", "degrees", "phase_error_deg", 0.5),
         PlotSpec("Amplitude ratio Q/I", "dB", "amplitude_ratio_db", 0.2),
-        PlotSpec("Predicted suppression", "dB", "predicted_suppression_db", 5.0),
+        PlotSpec("Predicted suppression", "dB", "predicted_suppression_db", 5.0, bound_key=MEASURED_KEY,
+                 legend="hollow triangle: at least (errors within the noise) · ringed: worst in band"),
     )
+
+    def points_of(self, result):
+        return [{**p, self.MEASURED_KEY: not p.get("predicted_suppression_is_bound", False)}
+                for p in super().points_of(result)]
 
     def score(self, p):
         return p.get("predicted_suppression_db")
+
+    def is_bound(self, p):
+        return p.get("predicted_suppression_db") is not None and p.get("predicted_suppression_is_bound") is True
 
     def strength(self, p):
         return p.get("left_dbfs", -999.0) + p.get("right_dbfs", -999.0)
@@ -110,13 +131,20 @@ class NetworkMode(BandMode):
     def worst_detail(self, w, inside, band):
         lo, hi = band
         err, f = w["phase_error_deg"], w["frequency_hz"]
-        return (f"{_plural(len(inside), 'point')} in {lo:g}–{hi:g} Hz · there: phase error {_signed(err, 2)}° "
-                f"({_signed(us_of(err, f), 2)} µs), ratio {_signed(w['amplitude_ratio_db'], 2)} dB")
+        if self.is_bound(w):
+            there = "phase error and ratio within their noise: a lower bound"
+        else:
+            there = (f"phase error {_signed(err, 2)}° ({_signed(us_of(err, f), 2)} µs), ratio "
+                     f"{_signed(w['amplitude_ratio_db'], 2)} dB")
+        return f"{_plural(len(inside), 'point')} in {lo:g}–{hi:g} Hz · there: {there}"
 
     def figures(self, p):
         f, deg, err = p["frequency_hz"], p["phase_difference_deg"], p["phase_error_deg"]
+        s = p["predicted_suppression_db"]
+        suppression = (f"suppression {AT_LEAST}{_down(s):.1f} dB (limited by noise)" if self.is_bound(p)
+                       else f"suppression {s:.1f} dB")
         detail = (f"at {f:.1f} Hz · error {_signed(err, 2)}° = {_signed(us_of(err, f), 2)} µs · ratio "
-                  f"{_signed(p['amplitude_ratio_db'], 2)} dB · suppression {p['predicted_suppression_db']:.1f} dB")
+                  f"{_signed(p['amplitude_ratio_db'], 2)} dB · {suppression}")
         return _plain(deg, 2), _plain(us_of(deg, f), 1), detail
 
     def advice(self, inside, band, network=None):
@@ -128,9 +156,12 @@ class NetworkMode(BandMode):
         except (RtaError, ValueError, np.linalg.LinAlgError) as exc:
             return [f"no advice yet: {exc}"]
         lines = list(d.get("advice") or [])
+        after = d["after_trims_worst_predicted_suppression_db"]
+        after = f"at least {_down(after):.1f}" if d.get("after_trims_worst_is_lower_bound") else f"{after:.1f}"
         if d.get("limited_now_by"):
-            lines.insert(0, f"limited now by {d['limited_now_by']}; after both trims the worst would be "
-                            f"{d['after_trims_worst_predicted_suppression_db']:.1f} dB")
+            lines.insert(0, f"limited now by {d['limited_now_by']}; after both trims the worst would be {after} dB")
+        elif d.get("summary"):
+            lines.insert(0, d["summary"])
         return lines
 
 

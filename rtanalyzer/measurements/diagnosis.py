@@ -5,14 +5,20 @@ Model of a phasing exciter's audio side, per audio frequency f:
 - a constant amplitude imbalance a (dB, Q over I) — what the amplitude trimmer moves;
 - a constant phase offset ε0 (degrees) — what the phase trimmer moves;
 - the network's frequency-dependent ripple r(f) — fixed by its parts, no trimmer moves it.
-  With the network's component values known, r(f) is the design's own departure from 90°
-  (``network_design``); otherwise it is whatever the constant terms leave.
+  With the network's component values known and the measured phase following them, r(f) is the
+  design's own departure from 90° (``network_design``); otherwise it is whatever the constant
+  terms leave. The measured ripple and the design's are reported apart.
+
+Errors within their noise (``dsp.quadrature.noise_limited_suppression``) are never named as
+the limit: the figures they leave are lower bounds ("at least").
 
 From quadrature points (phase difference and amplitude ratio, with sign) all three are fitted by
 least squares and the advice has a direction. Sideband suppression alone gives only the size of
-the combined error, 4·10^(-S/10) ≈ δ² + ε² (δ = g - 1, ε in radians, from the image-rejection
-relation for small errors): it cannot tell amplitude from phase, nor the sign of either, so the
-advice is a guided probe — nudge one trimmer, measure again, and :func:`probe` compares the
+the combined error: read back through the exact image-rejection relation it is an amplitude
+ratio of 20·log10((r + 1)/(r - 1)) dB if it is all amplitude, or a phase error of 2·atan(1/r) if
+it is all phase (r = 10^(S/20)); for small errors 4·10^(-S/10) ≈ δ² + ε² (δ = g - 1, ε in
+radians), which the probe's parabola uses. It cannot tell amplitude from phase, nor the sign of
+either, so the advice is a guided probe — nudge one trimmer, measure again, and :func:`probe` compares the
 readings.
 
 References
@@ -28,7 +34,14 @@ from typing import Any, Sequence
 
 import numpy as np
 
-from rtanalyzer.dsp.quadrature import image_rejection_db
+from rtanalyzer.dsp.quadrature import (
+    MAX_SUPPRESSION_DB,
+    NOISE_SIGMAS,
+    amplitude_only_error_db,
+    image_rejection_db,
+    noise_limited_suppression,
+    phase_only_error_deg,
+)
 from rtanalyzer.errors import MeasurementError
 from rtanalyzer.measurements.network_design import Network, best_trim_deg
 
@@ -37,6 +50,10 @@ AMPLITUDE_OK_DB = 0.005
 PHASE_OK_DEG = 0.01
 #: A suppression change smaller than this between two readings is not a clear change.
 PROBE_CLEAR_DB = 0.2
+#: Saved quadrature results give phase and amplitude figures to this step (6 decimals; 4 before
+#: they carried ``predicted_suppression_is_bound``).
+SAVED_STEP = 1e-6
+OLD_SAVED_STEP = 1e-4
 
 
 def _db(x: float) -> float:
@@ -47,6 +64,34 @@ def _us(phase_deg: float, frequency_hz: float) -> float:
     return phase_deg / (360.0 * frequency_hz) * 1e6
 
 
+def _worst(values: np.ndarray, bounds: np.ndarray) -> int:
+    """Index of the lowest figure, a measured one before a bound of the same value."""
+    return min(range(len(values)), key=lambda i: (float(values[i]), bool(bounds[i])))
+
+
+def _figure(value: float, bound: bool) -> str:
+    """A suppression in words: a lower bound says so and is rounded down."""
+    return f"at least {np.floor(value * 10.0) / 10.0:.1f} dB" if bound else f"{value:.1f} dB"
+
+
+def _bound_db(value: float, bound: bool) -> float:
+    return float(np.floor(value * 100.0) / 100.0) if bound else _db(value)
+
+
+def _small(x: float) -> str:
+    """A small positive figure with two significant digits and no exponent (0.00012, 0.35)."""
+    return np.format_float_positional(float(x), precision=2, unique=False, fractional=False, trim="-")
+
+
+def _angle(x: float) -> str:
+    """An angle in degrees: two decimals, or two significant digits when smaller than 0.01."""
+    return f"{x:.2f}" if x >= 0.01 else _small(x)
+
+
+def _rms(x: np.ndarray) -> float:
+    return float(np.sqrt(np.mean(np.square(x))))
+
+
 def diagnose_quadrature(points: Sequence[dict[str, Any]], network: Network | None = None,
                         band_hz=(300.0, 3000.0)) -> dict[str, Any]:
     """Fit the error model to quadrature points and say what limits the result and which way to turn.
@@ -55,22 +100,36 @@ def diagnose_quadrature(points: Sequence[dict[str, Any]], network: Network | Non
     ----------
     points : sequence of dict
         ``points`` of an ``analyze quadrature`` result (frequency_hz, phase_difference_deg,
-        amplitude_ratio_db, ...).
+        amplitude_ratio_db, and, when saved by this version, phase_uncertainty_deg,
+        amplitude_uncertainty_db, predicted_suppression_db, predicted_suppression_is_bound).
     network : Network, optional
-        The network's component values; its computed ripple is then the frequency-dependent term.
+        The network's component values. Its computed ripple becomes the frequency-dependent term
+        when the measured points follow it; either way the measured and the design's ripple are
+        both reported.
     band_hz : (float, float)
         Only points inside the band are fitted and judged.
 
     Returns
     -------
     dict
-        ``amplitude_offset_db``, ``phase_offset_deg``, ``ripple_deg``, the limits, and ``advice``:
-        lines such as ``"amplitude: raise Q by 0.15 dB"``.
+        ``amplitude_offset_db``, ``phase_offset_deg``, ``ripple_deg``, the limits (each with an
+        ``..._is_lower_bound`` flag: true when the errors behind it are within their noise),
+        ``limited_now_by`` (``"amplitude"``, ``"phase"`` or None when no measured error limits),
+        ``summary`` and ``advice``: lines such as ``"amplitude: raise Q by 0.15 dB"``.
 
     Raises
     ------
     MeasurementError
         When no point lies inside the band.
+
+    Notes
+    -----
+    An error is judged against its noise as :func:`rtanalyzer.dsp.quadrature.noise_limited_suppression`
+    does (:data:`~rtanalyzer.dsp.quadrature.NOISE_SIGMAS` standard deviations): the mean amplitude
+    ratio against the noise of a mean, each point's phase error against its own, and the ripple
+    (half the spread of the phase error) against the largest point's. A point without
+    uncertainties (saved by an older version) counts the 4-decimal rounding of its figures as
+    its noise. Nothing below the noise is named as a limit: the figure is then "at least".
 
     Examples
     --------
@@ -86,42 +145,95 @@ def diagnose_quadrature(points: Sequence[dict[str, Any]], network: Network | Non
     inside = [p for p in points if lo <= p["frequency_hz"] <= hi and abs(abs(p["phase_difference_deg"]) - 90) < 45]
     if not inside:
         raise MeasurementError(f"no quadrature point lies inside the band {lo:g}-{hi:g} Hz; widen --band")
+    k_sig = NOISE_SIGMAS
     f = np.array([p["frequency_hz"] for p in inside])
     diff = np.array([p["phase_difference_deg"] for p in inside])
     ratio = np.array([p["amplitude_ratio_db"] for p in inside])
+    # Nothing finer than half the step the saved figures are rounded to is known from them.
+    step = np.array([SAVED_STEP if "predicted_suppression_is_bound" in p else OLD_SAVED_STEP for p in inside])
+    sig_p = np.maximum([float(p.get("phase_uncertainty_deg") or 0.0) for p in inside], step / 2)
+    sig_a = np.maximum([float(p.get("amplitude_uncertainty_db") or 0.0) for p in inside], step / 2)
     sign = 1.0 if np.median(diff) >= 0 else -1.0
     error = np.abs(diff) - 90.0  # positive: I and Q further apart than 90 degrees
+    n = len(inside)
+
+    # Now: each point's own figure (a bound where its errors are within their noise).
+    now, now_bound = noise_limited_suppression(ratio, error, sig_a, sig_p)
+    for i, p in enumerate(inside):
+        if p.get("predicted_suppression_db") is not None and "predicted_suppression_is_bound" in p:
+            now[i], now_bound[i] = p["predicted_suppression_db"], bool(p["predicted_suppression_is_bound"])
+    k_now = _worst(now, now_bound)
+
+    # Each error alone: the mean amplitude ratio (noise of a mean), the phase error point by point.
     a0 = float(np.mean(ratio))
-    g0 = 10.0 ** (a0 / 20.0)
+    noise_a0 = k_sig * float(np.sqrt(np.sum(sig_a**2))) / n
+    amp_resolved = abs(a0) > noise_a0
+    amp_only, amp_bound = (float(x) for x in noise_limited_suppression(a0, 0.0, noise_a0 / k_sig, 0.0))
+    amp_bound = bool(amp_bound)
+    phase_each, phase_each_bound = noise_limited_suppression(0.0, error, 0.0, sig_p)
+    k_phase = _worst(phase_each, phase_each_bound)
+    phase_only, phase_bound = float(phase_each[k_phase]), bool(phase_each_bound[k_phase])
+    if not amp_bound and (amp_only < phase_only or (amp_only == phase_only and phase_bound)):
+        limiter = "amplitude"
+    elif not phase_bound and phase_only < amp_only:
+        limiter = "phase"
+    else:
+        limiter = None  # the smaller of the two is only a bound: no measured error limits
+
+    # The part of the phase error that changes with frequency: measured, and the design's.
+    noise_p = k_sig * float(sig_p.max())  # a spread of the phase error within this may be noise
+    measured_half = float(0.5 * (error.max() - error.min()))
+    design_half = None
+    follows = None  # do the measured points follow the design's ripple? None: cannot tell
     if network is not None:
-        ripple = np.abs(network.difference_deg(f)) - 90.0
-        eps0 = float(np.mean(error - ripple))
-        model = eps0 + ripple
-        unexplained = error - model
+        design = np.abs(network.difference_deg(f)) - 90.0
+        design_half = float(0.5 * (design.max() - design.min()))
+        if n >= 2 and design_half > noise_p:
+            flat = _rms(error - np.mean(error))
+            along = _rms((error - design) - np.mean(error - design))
+            follows = along < flat
+    if follows:
+        eps0 = float(np.mean(error - design))
+        model = eps0 + design
         source = "network"
     else:
-        ripple = error - np.mean(error)
         eps0 = float(np.mean(error))
         model = error
-        unexplained = np.zeros_like(error)
         source = "residual"
-    now = image_rejection_db(10.0 ** (ratio / 20.0), np.radians(error))
-    k_now = int(np.argmin(now))
-    amp_only = float(image_rejection_db(g0, 0.0))
-    phase_only = float(np.min(image_rejection_db(1.0, np.radians(error))))
     trim = float(best_trim_deg(model))  # add to the phase error: minimax over the band
-    after = image_rejection_db(1.0, np.radians(model + trim))
-    k_after = int(np.argmin(after))
     half_ripple = float(0.5 * (model.max() - model.min()))
+    ripple_resolved = half_ripple > noise_p
+    trim_resolved = abs(trim) > noise_p
+    if ripple_resolved:
+        after = image_rejection_db(1.0, np.radians(model + trim))
+        after_bound = after >= MAX_SUPPRESSION_DB
+    elif not (amp_resolved or trim_resolved):
+        after, after_bound = now, now_bound  # no trim to make: as now
+    else:
+        # Nothing the points resolve changes with frequency: after both trims what is left of
+        # either error is within its noise; the largest errors that allows give the bound.
+        after = image_rejection_db(10.0 ** ((np.abs(ratio - a0) + k_sig * sig_a) / 20.0),
+                                   np.radians(np.abs(model + trim) + k_sig * sig_p))
+        after_bound = np.ones(n, dtype=bool)
+    k_after = _worst(after, after_bound)
 
     advice = []
-    if abs(a0) >= AMPLITUDE_OK_DB:
+    if not amp_resolved:
+        advice.append(f"amplitude: balanced within the noise (±{_small(noise_a0)} dB); leave the amplitude trim"
+                      if noise_a0 < AMPLITUDE_OK_DB else
+                      f"amplitude: no imbalance above the noise (±{_small(noise_a0)} dB); a louder or longer capture "
+                      "would tell")
+    elif abs(a0) >= AMPLITUDE_OK_DB:
         verb, other = ("raise", "lower") if a0 < 0 else ("lower", "raise")
         advice.append(f"amplitude: {verb} Q by {abs(a0):.2f} dB (or {other} I by as much)")
     else:
         advice.append(f"amplitude: balanced within {AMPLITUDE_OK_DB} dB; leave the amplitude trim")
     f_ref = float(f[k_now])
-    if abs(trim) >= PHASE_OK_DEG:
+    if not trim_resolved:
+        advice.append(f"phase: centred within the noise (±{_small(noise_p)}°); leave the phase trim"
+                      if noise_p < PHASE_OK_DEG else
+                      f"phase: no offset above the noise (±{_small(noise_p)}°); a louder or longer capture would tell")
+    elif abs(trim) >= PHASE_OK_DEG:
         lead = "I leads Q" if sign > 0 else "Q leads I"
         closer = "closer together" if trim < 0 else "further apart"
         advice.append(
@@ -130,39 +242,74 @@ def diagnose_quadrature(points: Sequence[dict[str, Any]], network: Network | Non
         )
     else:
         advice.append("phase: centred; leave the phase trim")
-    what = "the network's ripple" if source == "network" else "the part of the phase error that changes with frequency"
-    advice.append(
-        f"phase: {what} limits you to {after[k_after]:.1f} dB at {f[k_after]:.0f} Hz (±{half_ripple:.2f}°); "
-        "no trim fixes that"
-    )
-    if network is not None and unexplained.size and float(np.sqrt(np.mean(unexplained**2))) > 0.1:
-        advice.append(
-            f"the measured phase departs from the design by {float(np.sqrt(np.mean(unexplained**2))):.2f}° rms beyond "
-            "a constant: parts differ from the list (tolerance, a wrong value, stray capacitance)"
-        )
+    if ripple_resolved:
+        if source == "network":
+            what = "the network's ripple"
+            detail = f"design ±{_angle(design_half)}°, measured ±{_angle(measured_half)}°: the points follow the design"
+        else:
+            what = "the part of the phase error that changes with frequency"
+            detail = f"measured ±{_angle(measured_half)}°"
+        advice.append(f"phase: {what} limits you to {_figure(after[k_after], after_bound[k_after])} at "
+                      f"{f[k_after]:.0f} Hz ({detail}); no trim fixes that")
+    else:
+        advice.append(f"phase: no ripple above the noise (measured ±{_angle(measured_half)}°, noise ±{_angle(noise_p)}°): "
+                      f"after both trims {_figure(after[k_after], True)} across the band")
+    if network is not None and source != "network":
+        design_limit = float(image_rejection_db(1.0, np.radians(design_half)))
+        if follows is None:
+            advice.append(f"the design's own ripple (±{_small(design_half)}°, {_figure(design_limit, False)}) is below "
+                          "what these points resolve")
+        else:
+            advice.append(f"the measured points do not follow the design's ripple (design ±{_angle(design_half)}°, which "
+                          f"alone would limit you to {design_limit:.1f} dB; measured ±{_angle(measured_half)}°): check "
+                          "that the network file describes the network measured")
+    if source == "network":
+        unexplained = _rms(error - model)
+        if unexplained > max(0.1, noise_p):
+            advice.append(
+                f"the measured phase departs from the design by {unexplained:.2f}° rms beyond "
+                "a constant: parts differ from the list (tolerance, a wrong value, stray capacitance)"
+            )
     spread = float(ratio.max() - ratio.min())
-    if spread > 0.05:
+    if spread > max(0.05, 2.0 * k_sig * float(sig_a.max())):
         advice.append(f"amplitude: the ratio changes by {spread:.2f} dB across the band; an all-pass network keeps "
                       "it flat, so look for loading or a coupling capacitor")
-    limiter = "phase" if phase_only < amp_only else "amplitude"
+    if limiter is not None:
+        summary = f"{limiter} limits now: worst {_figure(now[k_now], now_bound[k_now])} at {f[k_now]:.0f} Hz"
+    elif bool(np.all(now_bound)):
+        summary = f"no error above the noise: {_figure(now[k_now], True)} across the band"
+    else:
+        summary = (f"no measured error clearly limits: worst {_figure(now[k_now], now_bound[k_now])} at "
+                   f"{f[k_now]:.0f} Hz")
     return {
         "measurement": "diagnosis",
         "data": "quadrature",
         "band_hz": [lo, hi],
-        "points": len(inside),
+        "points": n,
         "ripple_source": source,
         "amplitude_offset_db": round(a0, 4),
         "phase_offset_deg": round(eps0, 4),
         "phase_trim_deg": round(trim, 4),
         "ripple_deg": round(half_ripple, 4),
-        "now_worst_predicted_suppression_db": _db(now[k_now]),
+        "ripple_measured_deg": round(measured_half, 4),
+        "ripple_design_deg": None if design_half is None else round(design_half, 4),
+        "ripple_above_noise": bool(ripple_resolved),
+        "points_follow_design": follows,
+        "amplitude_noise_db": round(noise_a0, 6),
+        "phase_noise_deg": round(noise_p, 6),
+        "now_worst_predicted_suppression_db": _bound_db(now[k_now], now_bound[k_now]),
         "now_worst_frequency_hz": round(float(f[k_now]), 2),
-        "amplitude_alone_limit_db": _db(amp_only),
-        "phase_alone_limit_db": _db(phase_only),
+        "now_worst_is_lower_bound": bool(now_bound[k_now]),
+        "amplitude_alone_limit_db": _bound_db(amp_only, amp_bound),
+        "amplitude_alone_is_lower_bound": amp_bound,
+        "phase_alone_limit_db": _bound_db(phase_only, phase_bound),
+        "phase_alone_is_lower_bound": phase_bound,
         "limited_now_by": limiter,
-        "after_trims_worst_predicted_suppression_db": _db(after[k_after]),
+        "after_trims_worst_predicted_suppression_db": _bound_db(after[k_after], after_bound[k_after]),
         "after_trims_worst_frequency_hz": round(float(f[k_after]), 2),
+        "after_trims_worst_is_lower_bound": bool(after_bound[k_after]),
         "sign_known": True,
+        "summary": summary,
         "advice": advice,
     }
 
@@ -200,15 +347,21 @@ def diagnose_sideband(points: Sequence[dict[str, Any]], network: Network | None 
     s = np.array([p["sideband_suppression_db"] for p in inside])
     bound = [not p.get("unwanted_detected", True) for p in inside]
     power = _error_power(s)
-    k = int(np.argmin(s))
-    as_phase = float(np.degrees(np.sqrt(power[k])))
-    as_amp = float(20.0 * np.log10(1.0 + np.sqrt(power[k])))
+    k = _worst(s, np.array(bound, dtype=bool))
+    # The exact image-rejection relation read backwards (not its small-error form, which
+    # understates the amplitude by 2 % at 33 dB and 7 % at 22 dB).
+    as_phase = float(phase_only_error_deg(s[k]))
+    as_amp = float(amplitude_only_error_db(s[k]))
+    as_amp = None if not np.isfinite(as_amp) else as_amp
     # Variation only among measured points: a bound says how deep at least, not where it is.
     measured = s[~np.array(bound, dtype=bool)]
     varies = float(measured.max() - measured.min()) if measured.size >= 2 else 0.0
+    at_most = "at most " if bound[k] else ""
+    amp_words = (f"{at_most}{as_amp:.3f} dB if it is all amplitude" if as_amp is not None
+                 else "no amplitude error alone gives a suppression of 0 dB or less")
     advice = [
-        f"worst {s[k]:.1f} dB at {f[k]:.0f} Hz: an error of {as_phase:.2f}° if it is all phase, or "
-        f"{as_amp:.3f} dB if it is all amplitude",
+        f"worst {_figure(s[k], bound[k])} at {f[k]:.0f} Hz: an error of {at_most}{as_phase:.2f}° if it is all "
+        f"phase, or {amp_words}",
         "suppression figures alone cannot tell amplitude from phase, nor which way either is off",
     ]
     result: dict[str, Any] = {
@@ -220,7 +373,7 @@ def diagnose_sideband(points: Sequence[dict[str, Any]], network: Network | None 
         "worst_frequency_hz": round(float(f[k]), 2),
         "worst_is_lower_bound": bound[k],
         "error_as_phase_deg": round(as_phase, 4),
-        "error_as_amplitude_db": round(as_amp, 4),
+        "error_as_amplitude_db": None if as_amp is None else round(as_amp, 4),
         "variation_db": round(varies, 2),
         "sign_known": False,
         "phase_offset_deg": None,

@@ -9,7 +9,11 @@ sweep). Each tone that stands clearly above the noise becomes one point:
 - ``amplitude_ratio_db``: right over left;
 - ``time_offset_us``: the phase difference as a time at that frequency, φ/(360·f);
 - ``predicted_suppression_db``: the opposite-sideband suppression these two errors alone allow,
-  from the image-rejection relation with g = the amplitude ratio and ε = the phase error.
+  from the image-rejection relation with g = the amplitude ratio and ε = the phase error; when the
+  errors are not clearly above their noise (``phase_uncertainty_deg``,
+  ``amplitude_uncertainty_db``) it is a lower bound and ``predicted_suppression_is_bound`` is true
+  (``dsp.quadrature.noise_limited_suppression``). The worst point's flag is
+  ``worst_is_lower_bound``, at the top and in ``band``.
 
 Tones are found in the Welch-averaged spectrum of the two channels (``dsp.spectrum``) and measured
 by the windowed DTFT at their refined frequency over the samples in which they are present
@@ -29,8 +33,8 @@ from scipy.ndimage import median_filter
 
 from rtanalyzer.dsp.noise import NEIGHBOURHOOD_BINS, band_noise, local_noise, median_to_mean, threshold_db
 from rtanalyzer.dsp.quadrature import (
-    image_rejection_db,
     is_steady,
+    noise_limited_suppression,
     SpanPhasors,
     phase_std_rad,
     sweep_steps,
@@ -84,10 +88,25 @@ class QuadraturePoint:
     def time_offset_us(self) -> float:
         return self.phase_difference_deg / (360.0 * self.frequency_hz) * 1e6
 
+    def _suppression(self) -> tuple[float, bool]:
+        value, bound = noise_limited_suppression(self.amplitude_ratio_db, self.phase_error_deg,
+                                                 self.amplitude_uncertainty_db, self.phase_uncertainty_deg)
+        return float(value), bool(bound)
+
     @property
     def predicted_suppression_db(self) -> float:
-        g = 10.0 ** (self.amplitude_ratio_db / 20.0)
-        return float(image_rejection_db(g, np.radians(self.phase_error_deg)))
+        """The suppression the two errors allow; only a lower bound when they are within the noise."""
+        return self._suppression()[0]
+
+    @property
+    def predicted_suppression_is_bound(self) -> bool:
+        """True when the errors are not clearly above their noise: the figure is then "at least"."""
+        return self._suppression()[1]
+
+    @property
+    def worst_key(self) -> tuple[float, bool]:
+        """Sort key of the worst point: lowest figure, a measured one before a bound of the same value."""
+        return self._suppression()
 
     @property
     def status(self) -> str:
@@ -102,15 +121,18 @@ class QuadraturePoint:
     def to_json(self) -> dict[str, Any]:
         return {
             "frequency_hz": rounded(self.frequency_hz, 3),
-            "phase_difference_deg": rounded(self.phase_difference_deg, 4),
-            "phase_error_deg": rounded(self.phase_error_deg, 4),
-            "amplitude_ratio_db": rounded(self.amplitude_ratio_db, 4),
+            # six decimals: a clean capture resolves errors of 1e-5 degree or dB
+            "phase_difference_deg": rounded(self.phase_difference_deg, 6),
+            "phase_error_deg": rounded(self.phase_error_deg, 6),
+            "amplitude_ratio_db": rounded(self.amplitude_ratio_db, 6),
             "time_offset_us": rounded(self.time_offset_us, 4),
-            "predicted_suppression_db": rounded(self.predicted_suppression_db, 2),
+            "predicted_suppression_db": _suppression_json(*self._suppression()),
+            "predicted_suppression_is_bound": self.predicted_suppression_is_bound,
             "left_dbfs": rounded(self.left_dbfs, 3),
             "right_dbfs": rounded(self.right_dbfs, 3),
-            "phase_uncertainty_deg": rounded(self.phase_uncertainty_deg, 5),
-            "amplitude_uncertainty_db": rounded(self.amplitude_uncertainty_db, 5),
+            # three significant figures: a clean capture's uncertainties are far below 1e-5
+            "phase_uncertainty_deg": _significant(self.phase_uncertainty_deg),
+            "amplitude_uncertainty_db": _significant(self.amplitude_uncertainty_db),
             "span_s": rounded(self.span_s, 3),
             "status": self.status,
         }
@@ -130,7 +152,7 @@ class QuadratureResult:
 
     @property
     def worst_point(self) -> QuadraturePoint | None:
-        return min(self.points, key=lambda p: p.predicted_suppression_db) if self.points else None
+        return min(self.points, key=lambda p: p.worst_key) if self.points else None
 
     @property
     def band_points(self) -> tuple[QuadraturePoint, ...]:
@@ -140,7 +162,7 @@ class QuadratureResult:
     @property
     def worst_in_band(self) -> QuadraturePoint | None:
         inside = self.band_points
-        return min(inside, key=lambda p: p.predicted_suppression_db) if inside else None
+        return min(inside, key=lambda p: p.worst_key) if inside else None
 
     def to_json(self) -> dict[str, Any]:
         worst, in_band = self.worst_point, self.worst_in_band
@@ -149,14 +171,16 @@ class QuadratureResult:
             "signal": self.signal_label,
             "sample_rate_hz": self.sample_rate_hz,
             "points": [p.to_json() for p in self.points],
-            "worst_predicted_suppression_db": rounded(worst.predicted_suppression_db, 2) if worst else None,
+            "worst_predicted_suppression_db": _suppression_json(*worst.worst_key) if worst else None,
             "worst_frequency_hz": rounded(worst.frequency_hz, 3) if worst else None,
+            "worst_is_lower_bound": worst.predicted_suppression_is_bound if worst else None,
             "band": {
                 "low_hz": self.band_hz[0],
                 "high_hz": self.band_hz[1],
                 "points": len(self.band_points),
-                "worst_predicted_suppression_db": rounded(in_band.predicted_suppression_db, 2) if in_band else None,
+                "worst_predicted_suppression_db": _suppression_json(*in_band.worst_key) if in_band else None,
                 "worst_frequency_hz": rounded(in_band.frequency_hz, 3) if in_band else None,
+                "worst_is_lower_bound": in_band.predicted_suppression_is_bound if in_band else None,
                 "worst_phase_error_deg": rounded(in_band.phase_error_deg, 4) if in_band else None,
                 "worst_amplitude_ratio_db": rounded(in_band.amplitude_ratio_db, 4) if in_band else None,
             },
@@ -166,6 +190,15 @@ class QuadratureResult:
             "calibration": list(self.calibration),
             "warnings": list(self.warnings),
         }
+
+
+def _suppression_json(value: float, bound: bool) -> float:
+    """Two decimals; a lower bound is rounded down so that it stays one."""
+    return float(np.floor(value * 100.0) / 100.0) if bound else round(value, 2)
+
+
+def _significant(value: float) -> float:
+    return float(f"{value:.3g}")
 
 
 def _mean_spectrum(left: Spectrum, right: Spectrum) -> Spectrum:
