@@ -45,11 +45,13 @@ def _quadrature_lines(r: dict) -> list[str]:
     lines = [
         f"phase I-Q    {top['phase_difference_deg']:.2f}° = {top['time_offset_us']:.1f} µs at {f:.1f} Hz"
         f"   error {top['phase_error_deg']:+.2f}° ({err_us:+.2f} µs)",
-        f"ratio Q/I    {top['amplitude_ratio_db']:+.3f} dB   predicted suppression {top['predicted_suppression_db']:.1f} dB",
+        f"ratio Q/I    {top['amplitude_ratio_db']:+.3f} dB   predicted suppression "
+        f"{'≥ ' if top.get('predicted_suppression_is_bound') else ''}{top['predicted_suppression_db']:.1f} dB",
     ]
     band = r.get("band") or {}
     if len(points) > 1 and band.get("worst_predicted_suppression_db") is not None:
-        lines.append(f"band {band['low_hz']:g}-{band['high_hz']:g} Hz  worst {band['worst_predicted_suppression_db']:.1f} dB "
+        bound = "≥ " if band.get("worst_is_lower_bound") else ""
+        lines.append(f"band {band['low_hz']:g}-{band['high_hz']:g} Hz  worst {bound}{band['worst_predicted_suppression_db']:.1f} dB "
                      f"at {band['worst_frequency_hz']:.0f} Hz ({band['points']} tones)")
     return lines
 
