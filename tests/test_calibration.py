@@ -362,3 +362,17 @@ def test_two_unrelated_signals_are_refused_with_the_reason():
     right = sum(0.1 * np.cos(2 * np.pi * f * t + p) for f, p in ((300.0, 2.0), (1000.0, -1.0), (2500.0, 0.5)))
     with pytest.raises(MeasurementError, match="one signal fed to both inputs"):
         make_channels_profile(Signal(left + 1j * right, rate), "x")
+
+
+def test_the_text_output_names_the_calibration_applied(tmp_path, capsys, monkeypatch):
+    # A level profile applied to analyze sideband: the text says so and where the volts are.
+    monkeypatch.setenv("RTANALYZER_CALIBRATION_DIR", str(tmp_path / "cal"))
+    rate = 48000
+    t = np.arange(2 * rate) / rate
+    x = 0.5 * np.cos(2 * np.pi * 5000 * t) + 0.005 * np.cos(2 * np.pi * 3000 * t)
+    write_profile(Profile("level", "lvl", float(rate), values={"channel_1_full_scale_vrms": 1.0}))
+    write_wav(tmp_path / "sb.wav", x, rate)
+    code = main(["analyze", "sideband", str(tmp_path / "sb.wav"), "--tone", "1000", "--carrier", "4000",
+                 "--calibration", "lvl"])
+    out = capsys.readouterr().out
+    assert code == 0 and "calibration applied: lvl (levels in dBV" in out

@@ -25,6 +25,11 @@ def _footer(r: dict[str, Any]) -> list[str]:
         f"noise floor {r['noise_floor_dbfs']:.1f} dBFS in {r['analysis_bandwidth_hz']:.2f} Hz "
         "(analysis bandwidth)"
     ]
+    if r.get("calibration"):
+        volts = any(k.endswith("_dbv") for k in r) or any(
+            isinstance(p, dict) and any(k.endswith("_dbv") for k in p) for p in r.get("points") or [])
+        lines.append("calibration applied: " + ", ".join(r["calibration"])
+                     + (" (levels in dBV re 1 V RMS: the _dbv keys of --json)" if volts else ""))
     if r.get("clipped"):
         lines.append("CLIPPED: reduce the input level; these figures are not valid")
     lines += [f"warning: {w}" for w in r.get("warnings", [])]
@@ -117,8 +122,6 @@ def quadrature(r: dict[str, Any]) -> list[str]:
         lines.append(f"in the band {band['low_hz']:g}-{band['high_hz']:g} Hz: worst "
                      f"{_predicted(band['worst_predicted_suppression_db'], band.get('worst_is_lower_bound'))} at "
                      f"{band['worst_frequency_hz']:.1f} Hz")
-    if r.get("calibration"):
-        lines.append("calibration: " + ", ".join(r["calibration"]))
     return lines + _footer(r)
 
 
