@@ -185,12 +185,17 @@ class SessionRunner(QObject):
         if now - self._last_shown < 1.0 / self.display_hz - DRAIN_MS / 2000.0:
             return
         self._last_shown = now
-        if self._held is not None:
-            held, self._held = self._held, None
-            self.readout.emit(held)
         prep = self.prep
         frame = prep.latest if prep is not None else None
-        if frame is not None and frame is not self._last_frame:
+        fresh = frame is not None and frame is not self._last_frame
+        if self._held is not None:
+            held, self._held = self._held, None
+            # The figures and the spectrum they label come from one readout: the new frame's
+            # (prepared just after its readout was queued, so at most one readout older).
+            if fresh:
+                held = frame.readout
+            self.readout.emit(held)
+        if fresh:
             self._last_frame = frame
             self.frame.emit(frame)
 
