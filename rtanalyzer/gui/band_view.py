@@ -499,9 +499,6 @@ def attach(window) -> BandView:
             status_progress.show()
         else:
             status_progress.hide()
-        if r.measurement == "quadrature":
-            for tile in window.tiles.values():
-                tile.set_unavailable("90° network: View ▸ Across the band (N)")
         engine = window.runner.engine
         if engine is not None and r.measurement != engine.measurement.name:
             return  # the session before the newest one: its last readout may still be on its way

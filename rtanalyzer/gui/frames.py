@@ -31,7 +31,7 @@ FLOOR_DB = -200.0
 class Marker:
     """A component the measurement named, where it sits and what to write beside it."""
 
-    role: str  # "carrier", "wanted", "unwanted" or "imd"
+    role: str  # "carrier", "wanted", "unwanted" (a 90° network's image too) or "imd"
     frequency_hz: float
     level_dbfs: float  # measured level, or the detection bound when not detected
     detected: bool
@@ -64,13 +64,96 @@ def _db(x: float | None) -> str:
     return "—" if x is None else f"{x:.1f}".replace("-", "−")
 
 
+def _hz(f: float) -> str:
+    """A tone's frequency as a label says it: 646 Hz, a sweep's 1392.48 Hz as 1392 Hz."""
+    return f"{f:.0f} Hz" if abs(f) >= 100.0 else f"{f:g} Hz"
+
+
+def _signed(x: float, decimals: int = 2) -> str:
+    return ("+" if x > 0 else "") + f"{x:.{decimals}f}".replace("-", "−")
+
+
 def markers_of(result: dict[str, Any] | None) -> tuple[Marker, ...]:
-    """The markers for a sideband or two-tone result (positions and levels from its JSON)."""
+    """The markers for a sideband, two-tone or 90° network result (positions and levels from its JSON)."""
     if not result:
         return ()
+    if result.get("measurement") == "quadrature":
+        return _quadrature_markers(result)
     if result.get("measurement") == "twotone" or "imd" in result:
         return _twotone_markers(result)
     return _sideband_markers(result)
+
+
+def noise_sigmas() -> float:
+    """How many standard deviations make a network error 'measured' (the measurement's rule)."""
+    from rtanalyzer.dsp import quadrature
+
+    return float(getattr(quadrature, "NOISE_SIGMAS", 3.0))
+
+
+#: An image counts as seen on the spectrum when its level stands this far above the noise floor.
+IMAGE_CLEAR_DB = 10.0
+
+
+def quadrature_components(p: dict[str, Any]) -> tuple[float, float, float] | None:
+    """Where a network point's tone and its image sit in the spectrum of left + j·right.
+
+    For I = a·cos(ωt + α) and Q = b·cos(ωt + β) the complex signal I + jQ holds
+    (a·e^{jα} + j·b·e^{jβ})/2 at +f and (a·e^{-jα} + j·b·e^{-jβ})/2 at -f: with Q lagging I by
+    90° all of it at +f. Returns (signed frequency of the stronger, its level in dBFS, the other's
+    level in dBFS), or None when the point lacks a level or a phase.
+    """
+    f, left, right = p.get("frequency_hz"), p.get("left_dbfs"), p.get("right_dbfs")
+    diff = p.get("phase_difference_deg")
+    if f is None or left is None or right is None or diff is None:
+        return None
+    a, b = 10.0 ** (left / 20.0), 10.0 ** (right / 20.0)
+    d = np.radians(diff)
+    pos = float(20.0 * np.log10(max(abs(a + b * np.exp(1j * (np.pi / 2 - d))) / 2.0, 1e-15)))
+    neg = float(20.0 * np.log10(max(abs(a + b * np.exp(1j * (np.pi / 2 + d))) / 2.0, 1e-15)))
+    return (f, pos, neg) if pos >= neg else (-f, neg, pos)
+
+
+def _quadrature_markers(result: dict[str, Any]) -> tuple[Marker, ...]:
+    """Each tone of a 90° network at the side of the spectrum it turns to, with its phase error, and
+    its image at the mirror frequency (the suppression the errors allow below it). A multitone names
+    only the worst point in the band (the one the suppression tile names)."""
+    points = [(p, c) for p in result.get("points") or [] if (c := quadrature_components(p)) is not None]
+    band = result.get("band") or {}
+    named_f = band.get("worst_frequency_hz")
+    if named_f is None:
+        named_f = result.get("worst_frequency_hz")
+    many = len(points) > 3
+    floor = result.get("noise_floor_dbfs")
+    markers: list[Marker] = []
+    for p, (f, wanted_db, _) in points:
+        named = not many or (named_f is not None and abs(p["frequency_hz"] - named_f) < 0.01)
+        hidden = bool(p.get("predicted_suppression_is_bound"))
+        err = p.get("phase_error_deg")
+        if err is None:
+            text = _hz(p["frequency_hz"])
+        elif hidden:
+            most = abs(err) + noise_sigmas() * (p.get("phase_uncertainty_deg") or 0.0)
+            most = np.ceil(most * 100.0 - 1e-6) / 100.0  # an upper bound stays one when rounded
+            text = f"{_hz(p['frequency_hz'])} · error ≤ {most:.2f}°"
+        else:
+            text = f"{_hz(p['frequency_hz'])} · error {_signed(err)}°"
+        markers.append(Marker("wanted", f, wanted_db, True, text if named else ""))
+        supp = p.get("predicted_suppression_db")
+        if supp is None:
+            continue
+        image_db = wanted_db - supp  # for a bound: the most the image can be
+        seen = not hidden and (floor is None or image_db >= floor + IMAGE_CLEAR_DB)
+        if hidden:  # a lower bound stays one when rounded: down to the tenth
+            text = f"image\n≥ {_db(np.floor(supp * 10.0 + 1e-6) / 10.0)} dB down"
+        elif seen:
+            text = f"image\n{_db(supp)} dB down"
+        else:  # the errors are measured; the image they make is below what the spectrum shows
+            text = f"image under the noise\npredicted {_db(supp)} dB down"
+        if not seen and floor is not None:
+            image_db = max(image_db, floor)  # a hollow mark on the noise: not seen, at most there
+        markers.append(Marker("unwanted", -f, image_db, seen, text if named else ""))
+    return tuple(markers)
 
 
 def _sideband_markers(result: dict[str, Any]) -> tuple[Marker, ...]:
@@ -154,6 +237,8 @@ def pattern_tones(result: dict[str, Any] | None) -> tuple[float, ...]:
     """The fundamental tones whose envelope is the 'drive': the two tones, or the wanted ones."""
     if not result:
         return ()
+    if result.get("measurement") == "quadrature":  # each tone on the side of I + jQ it turns to
+        return tuple(c[0] for p in (result.get("points") or []) if (c := quadrature_components(p)) is not None)
     if "imd" in result:
         return tuple(f for f in (result.get("tone_hz") or []) if f is not None)
     return tuple(p["wanted_hz"] for p in (result.get("points") or []) if p.get("wanted_hz") is not None)
@@ -222,7 +307,10 @@ class DisplayPrep:
             self._spectrum(frame, spectrum)
         if result is not None:
             frame.markers = markers_of(result)
-            if frame.level_dbfs is not None and _passband_corrected(result):
+            # A network's levels come from the two channels' transforms, not from this spectrum of
+            # I + jQ: its dots are put on the trace's peaks (their labels keep the JSON's figures).
+            if frame.level_dbfs is not None and (_passband_corrected(result)
+                                                 or result.get("measurement") == "quadrature"):
                 frame.markers = _on_trace(frame, frame.markers)
             frame.noise_floor_dbfs = result.get("noise_floor_dbfs")
             frame.analysis_bandwidth_hz = result.get("analysis_bandwidth_hz")

@@ -7,7 +7,7 @@ from collections import deque
 
 from PyQt6.QtCore import QRectF, Qt
 from PyQt6.QtGui import QColor, QFont, QPainter, QPen
-from PyQt6.QtWidgets import QFrame, QGridLayout, QHBoxLayout, QLabel, QSizePolicy, QVBoxLayout, QWidget
+from PyQt6.QtWidgets import QFrame, QHBoxLayout, QLabel, QSizePolicy, QVBoxLayout, QWidget
 
 from rtanalyzer.gui import style
 
@@ -20,8 +20,8 @@ def signed(value: float, decimals: int = 1) -> str:
 
 
 def parse_readout(text: str) -> float | None:
-    """The number in a readout's text ('≥ 32.9', '−41.0'), for tests and exports."""
-    cleaned = text.replace(MINUS, "-").replace("≥", "").replace("≤", "").strip()
+    """The number in a readout's text ('≥ 32.9', '−41.0', '+1.25°'), for tests and exports."""
+    cleaned = text.replace(MINUS, "-").replace("≥", "").replace("≤", "").replace("°", "").strip()
     try:
         return float(cleaned)
     except ValueError:
@@ -73,62 +73,130 @@ class ChangeTracker:
 
 
 class ReadoutTile(QFrame):
-    """One large figure with its title, unit, a 'which way it went' mark and a detail line."""
+    """One large figure with its title, unit, a 'which way it went' mark and a detail line.
+
+    ``better`` says which way a change is for the better: "larger", "smaller" or "nearer_zero"
+    (an error: a change toward 0 is better whichever its sign). :meth:`configure` turns the tile
+    to another figure (the window shows other figures for another measurement).
+    """
+
+    #: Lines the detail keeps room for (the tiles keep one height whatever they show).
+    DETAIL_LINES = 2
 
     def __init__(self, key: str, title: str, unit: str, larger_is_better: bool, parent=None) -> None:
         super().__init__(parent)
         self.key = key
         self.unit = unit
-        self.larger_is_better = larger_is_better
+        self.better = "larger" if larger_is_better else "smaller"
+        self.decimals = 1
+        self.signed = False
         self.tracker = ChangeTracker()
         self.setObjectName("tile")
         self.setSizePolicy(QSizePolicy.Policy.Expanding, QSizePolicy.Policy.Fixed)
-        layout = QGridLayout(self)
+        layout = QVBoxLayout(self)
         layout.setContentsMargins(14, 8, 14, 8)
-        layout.setHorizontalSpacing(6)
-        layout.setVerticalSpacing(0)
+        layout.setSpacing(0)
         self.title_label = QLabel(title)
         self.title_label.setFont(_font(style.TITLE_PT, QFont.Weight.DemiBold))
         self.title_label.setStyleSheet(f"color: {style.INK_SOFT};")
         self.value_label = QLabel("—")
         self.value_label.setObjectName(f"value_{key}")
         self.value_label.setFont(_font(style.VALUE_PT, QFont.Weight.Bold))
-        self.value_label.setAlignment(Qt.AlignmentFlag.AlignLeft | Qt.AlignmentFlag.AlignBaseline)
+        self.value_label.setAlignment(Qt.AlignmentFlag.AlignLeft | Qt.AlignmentFlag.AlignVCenter)
         self.unit_label = QLabel(unit)
         self.unit_label.setFont(_font(style.UNIT_PT))
-        self.unit_label.setAlignment(Qt.AlignmentFlag.AlignLeft | Qt.AlignmentFlag.AlignBaseline)
+        self.unit_label.setAlignment(Qt.AlignmentFlag.AlignLeft | Qt.AlignmentFlag.AlignBottom)
         self.change_label = QLabel("")
-        self.change_label.setFont(_font(style.SMALL_PT + 2, QFont.Weight.Bold))
+        self.change_label.setFont(_font(style.SMALL_PT + 1, QFont.Weight.Bold))
         self.change_label.setAlignment(Qt.AlignmentFlag.AlignLeft | Qt.AlignmentFlag.AlignTop)
         self.detail_label = QLabel("")
         self.detail_label.setWordWrap(True)
-        self.detail_label.setMinimumHeight(36)
         self.detail_label.setAlignment(Qt.AlignmentFlag.AlignLeft | Qt.AlignmentFlag.AlignTop)
         self.detail_label.setFont(_font(style.SMALL_PT + 1))
         self.detail_label.setStyleSheet(f"color: {style.INK_SOFT};")
-        layout.addWidget(self.title_label, 0, 0, 1, 2)
+        line = self.detail_label.fontMetrics().lineSpacing()
+        self.detail_label.setFixedHeight(self.DETAIL_LINES * line + 2)
+        layout.addWidget(self.title_label)
+        # The figure, and beside it the direction it went (above) and its unit (below, on the
+        # figure's baseline): the detail under them then has the tile's whole width.
         value_row = QHBoxLayout()
         value_row.setSpacing(8)
-        value_row.addWidget(self.value_label, 0, Qt.AlignmentFlag.AlignBaseline)
-        value_row.addWidget(self.unit_label, 0, Qt.AlignmentFlag.AlignBaseline)
+        value_row.addWidget(self.value_label, 0)
+        beside = QVBoxLayout()
+        beside.setSpacing(0)
+        beside.setContentsMargins(0, 6, 0, 6)
+        beside.addWidget(self.change_label, 0, Qt.AlignmentFlag.AlignLeft | Qt.AlignmentFlag.AlignTop)
+        beside.addStretch(1)
+        beside.addWidget(self.unit_label, 0, Qt.AlignmentFlag.AlignLeft | Qt.AlignmentFlag.AlignBottom)
+        value_row.addLayout(beside)
         value_row.addStretch(1)
-        layout.addLayout(value_row, 1, 0, 1, 2)
-        layout.addWidget(self.change_label, 2, 0, Qt.AlignmentFlag.AlignLeft | Qt.AlignmentFlag.AlignTop)
-        layout.addWidget(self.detail_label, 2, 1)
-        layout.setColumnStretch(1, 1)
+        layout.addLayout(value_row)
+        layout.addWidget(self.detail_label)
         self.value: float | None = None
+        self._subject: object = None
+        self._spec = (title, unit, self.better, self.decimals, self.signed)
         self.set_unavailable("waiting for the first readout")
 
-    def set_figure(self, t: float, value: float | None, bound: str = "", detail: str = "", unit: str | None = None) -> None:
-        """Show ``value`` (None: no figure); ``bound`` is '≥' or '≤' when the component is under the noise."""
+    @property
+    def larger_is_better(self) -> bool:
+        return self.better == "larger"
+
+    def configure(self, title: str, unit: str, better: str = "larger", decimals: int = 1,
+                  signed_value: bool = False) -> None:
+        """Show another figure: its title, unit, which way is better, its decimals and whether
+        a positive value carries its '+' (an error or a ratio)."""
+        if better not in ("larger", "smaller", "nearer_zero"):
+            raise ValueError(f"better = {better!r}: larger, smaller or nearer_zero")
+        spec = (title, unit, better, decimals, signed_value)
+        if spec == self._spec:
+            return
+        self._spec = spec
+        set_text(self.title_label, title)
+        self.unit = unit
+        set_text(self.unit_label, "" if unit == "°" else unit)
+        self.better, self.decimals, self.signed = better, decimals, signed_value
+        self.set_unavailable("waiting for the first readout")
+
+    def set_title(self, title: str) -> None:
+        """Say more precisely what the figure is of (the figure, its unit and its trend stay)."""
+        set_text(self.title_label, title)
+
+    def format_value(self, value: float, bound: str = "") -> str:
+        """The figure as shown: '≥ 31.0', '−2.26', '+0.35' (a bound on a size carries no '+').
+
+        A bound stays one when rounded: '≥' rounds down, '≤' up.
+        """
+        step = 10.0 ** self.decimals
+        if bound == "≥":
+            value = math.floor(value * step + 1e-6) / step
+        elif bound == "≤":
+            value = math.ceil(value * step - 1e-6) / step
+        text = signed(value, self.decimals)
+        if self.signed and value > 0 and not bound:
+            text = f"+{text}"
+        if self.unit == "°":  # a degree sign stands against its number, not beside it as a unit
+            text += "°"
+        return f"{bound} {text}" if bound else text
+
+    def set_figure(self, t: float, value: float | None, bound: str = "", detail: str = "", unit: str | None = None,
+                   subject: object = None) -> None:
+        """Show ``value`` (None: no figure); ``bound`` is '≥' or '≤' when the component is under the noise.
+
+        ``subject`` names what the figure is of (a tone's frequency, a band): when it changes, as
+        a stepped sweep moves on, the figure's direction starts afresh (another tone's figure is
+        no trend).
+        """
+        if subject != self._subject:
+            self._subject = subject
+            self.tracker.reset()
         if unit is not None and unit != self.unit:
             self.unit = unit
-            self.unit_label.setText(unit)
+            self.unit_label.setText("" if unit == "°" else unit)
         if value is None:
             self.set_unavailable(detail or "no figure")
             return
         self.value = value
-        set_text(self.value_label, f"{bound + ' ' if bound else ''}{signed(value)}")
+        set_text(self.value_label, self.format_value(value, bound))
         set_style(self.value_label, f"color: {style.INK};")
         set_style(self.unit_label, f"color: {style.INK};")
         set_text(self.detail_label, detail)
@@ -137,14 +205,20 @@ class ReadoutTile(QFrame):
             set_text(self.change_label, "")
             return
         change = self.tracker.update(t, value)
-        if change is None or abs(change) < self.tracker.steady_db:
+        steady = self.tracker.steady_db * 10.0 ** (1 - self.decimals)  # 0.1 dB; 0.01 at two decimals
+        if change is None or abs(change) < steady:
             set_text(self.change_label, "● steady" if change is not None else "")
             set_style(self.change_label, f"color: {style.INK_SOFT};")
             return
-        better = (change > 0) == self.larger_is_better
+        if self.better == "nearer_zero":
+            better = abs(value) < abs(value - change)
+        else:
+            better = (change > 0) == (self.better == "larger")
         arrow = "▲" if change > 0 else "▼"
         colour = style.BETTER if better else style.WORSE
-        set_text(self.change_label, f"{arrow} {abs(change):.1f} dB {'better' if better else 'worse'}")
+        amount = f"{abs(change):.{self.decimals}f}"
+        unit = "°" if self.unit == "°" else " dB"  # a change of a level in dBc or dB PEP is in dB
+        set_text(self.change_label, f"{arrow} {amount}{unit} {'better' if better else 'worse'}")
         set_style(self.change_label, f"color: {colour};")
 
     def set_unavailable(self, why: str) -> None:
@@ -289,8 +363,12 @@ class MetersTile(QFrame):
             pk_text = "—" if pk is None else signed(pk)
             rm_text = "—" if rm is None else signed(rm)
             clipped = counts[ch] if ch < len(counts) else 0
-            extra = f" · {clipped} clipped samples" if clipped else ""
-            set_text(numbers, f"peak {pk_text} dBFS · RMS {rm_text} dBFS{extra}")
+            # One short line that fits the tile with two channels; the count of clipped samples
+            # is on the clip light (lit, and its tip says how many).
+            set_text(numbers, f"peak {pk_text} · RMS {rm_text} dBFS")
+            tip = f"{clipped} clipped sample{'' if clipped == 1 else 's'} (held)" if clipped else "no clipped samples"
+            if clip.toolTip() != tip:
+                clip.setToolTip(tip)
         over = xruns.get("input_overflows", 0)
         under = xruns.get("output_underflows", 0)
         dropped = xruns.get("dropped_blocks", 0)

@@ -41,7 +41,7 @@ from rtanalyzer.gui.calibration_menu import attach as attach_calibration_menu
 from rtanalyzer.gui.choices import GeneratorChoice
 from rtanalyzer.gui.controls import ControlsPanel
 from rtanalyzer.gui.dialogs import cautions_dialog, shortcuts_dialog, truth_text, TextDialog
-from rtanalyzer.gui.frames import DisplayFrame
+from rtanalyzer.gui.frames import DisplayFrame, noise_sigmas
 from rtanalyzer.gui.history_view import HistoryHooks
 from rtanalyzer.gui.plots import PatternPlot, PlotCanvas, SpectrumPlot, TrendPlot, WaveformPlot
 from rtanalyzer.gui.runner import DISPLAY_RATES, SessionRunner
@@ -58,6 +58,62 @@ FIGURES = {
     "twotone": ("worst IMD", "dB PEP"),
     "quadrature": ("suppression the network allows", "dB"),
 }
+
+#: The three large tiles: title, unit, which way is better, decimals, '+' on positive values.
+TILES = {
+    "sideband": ("Opposite-sideband suppression", "dB", "larger", 1, False),
+    "carrier": ("Carrier suppression", "dBc", "larger", 1, False),
+    "imd": ("Worst IMD (two-tone)", "dB PEP", "smaller", 1, False),
+}
+#: The same tiles for a 90° network measured alone (``quadrature``).
+QUADRATURE_TILES = {
+    "sideband": ("Predicted suppression", "dB", "larger", 1, False),
+    "carrier": ("Phase error, strongest tone", "°", "nearer_zero", 2, True),
+    "imd": ("Amplitude ratio Q/I", "dB", "nearer_zero", 2, True),
+}
+#: Tones within this of the strongest (mean of the two channels, dB) count as equally strong.
+EQUAL_TONES_DB = 0.5
+NBSP = "\u00a0"  # keeps a number on the line of its unit when a tile's detail wraps
+
+
+def hz(f: float, fmt: str | None = None) -> str:
+    """'646 Hz' that a wrapping line does not split; a sweep's 1392.48 Hz as 1392 Hz."""
+    if fmt is None:
+        fmt = ".0f" if abs(f) >= 100.0 else "g"
+    return f"{f:{fmt}}{NBSP}Hz"
+
+
+def menu_path(*names: str) -> str:
+    """'Generator ▸ Two-tone' kept on one line of a wrapping tile (no break at the hyphen either)."""
+    return f"{NBSP}▸{NBSP}".join(n.replace(" ", NBSP).replace("-", "\u2011") for n in names)
+
+
+def band_text(lo: float, hi: float) -> str:
+    return f"{lo:g}–{hi:g}{NBSP}Hz"
+
+
+def shown_tone(points: list[dict]) -> dict | None:
+    """The network point the phase and ratio tiles show: the strongest tone; of tones equally
+    strong (a multitone), the one that allows the least suppression, so that the tiles do not hop
+    between equal tones and speak of the tone the suppression tile names."""
+    usable = equal_tones(points)
+    if not usable:
+        return None
+    return min(usable, key=lambda p: (p.get("predicted_suppression_db") if p.get("predicted_suppression_db")
+                                      is not None else math.inf, p["frequency_hz"]))
+
+
+def equal_tones(points: list[dict]) -> list[dict]:
+    """The network points as strong as the strongest (within EQUAL_TONES_DB)."""
+    usable = [p for p in points if p.get("left_dbfs") is not None and p.get("right_dbfs") is not None]
+    if not usable:
+        return []
+
+    def level(p):
+        return 0.5 * (p["left_dbfs"] + p["right_dbfs"])
+
+    top = max(level(p) for p in usable)
+    return [p for p in usable if level(p) >= top - EQUAL_TONES_DB]
 
 
 def flatten(value: Any, prefix: str = "") -> list[tuple[str, Any]]:
@@ -156,11 +212,8 @@ class MainWindow(QMainWindow):
         outer.addWidget(self.banner)
         tiles = QHBoxLayout()
         tiles.setSpacing(8)
-        self.tiles = {
-            "sideband": ReadoutTile("sideband", "Opposite-sideband suppression", "dB", True),
-            "carrier": ReadoutTile("carrier", "Carrier suppression", "dBc", True),
-            "imd": ReadoutTile("imd", "Worst IMD (two-tone)", "dB PEP", False),
-        }
+        self.tiles = {key: ReadoutTile(key, title, unit, better == "larger")
+                      for key, (title, unit, better, _, _) in TILES.items()}
         for tile in self.tiles.values():
             tiles.addWidget(tile, 3)
         self.meters = MetersTile()
@@ -575,6 +628,7 @@ class MainWindow(QMainWindow):
 
     def _started(self, engine) -> None:
         self.meters.set_channels(engine.source.channels, self._channel_names(engine))
+        self._tiles_for(engine.measurement.name)
         self._set_trend_figure(engine.measurement.name)
         self._update_status()
 
@@ -609,6 +663,7 @@ class MainWindow(QMainWindow):
                                 self._channel_names(self.runner.engine) if self.runner.engine else None)
         result = readout.result
         t = readout.t
+        self._tiles_for(readout.measurement)
         if result is None:
             if readout.error not in ("settling",):
                 for tile in self.tiles.values():
@@ -621,6 +676,8 @@ class MainWindow(QMainWindow):
             self._sideband_tiles(t, result)
         elif measurement == "twotone":
             self._twotone_tiles(t, result)
+        elif measurement == "quadrature":
+            self._quadrature_tiles(t, result)
         notes = list(result.get("warnings") or [])
         if result.get("clipped"):
             notes.insert(0, "the input clipped: figures are not trustworthy")
@@ -631,6 +688,12 @@ class MainWindow(QMainWindow):
         best = readout.best or {}
         self.trend.add(t, best.get("value"))
 
+    def _tiles_for(self, measurement: str) -> None:
+        """Title, unit and sense of the three tiles for ``measurement`` (a no-op when they have them)."""
+        specs = QUADRATURE_TILES if measurement == "quadrature" else TILES
+        for key, (title, unit, better, decimals, plus) in specs.items():
+            self.tiles[key].configure(title, unit, better, decimals, plus)
+
     def _sideband_tiles(self, t: float, r: dict) -> None:
         points = r.get("points") or []
         worst, bound = r.get("worst_sideband_suppression_db"), r.get("worst_is_lower_bound")
@@ -639,28 +702,31 @@ class MainWindow(QMainWindow):
         if len(points) > 1 and in_band and band:
             # Several tones: the trim is judged inside the band (as the trend and best-so-far are).
             worst, bound = in_band["sideband_suppression_db"], in_band["is_lower_bound"]
-            where_worst = f"worst in {band[0]:g}–{band[1]:g} Hz"
+            where_worst = f"worst in {band_text(*band)}"
         detail = ""
         p = min((q for q in points if q.get("sideband_suppression_db") == worst), key=lambda q: q["tone_hz"],
                 default=None)
         if p is not None:
             # Short enough for two lines of the tile: the wanted level is labelled on the spectrum.
-            where = f"{where_worst} at {p['tone_hz']:g} Hz" if len(points) > 1 else f"at {p['tone_hz']:g} Hz"
+            where = f"{where_worst} at {hz(p['tone_hz'])}" if len(points) > 1 else f"at {hz(p['tone_hz'])}"
             if p.get("unwanted_detected"):
-                detail = f"{where} · unwanted {signed(p['unwanted_dbfs'])} dBFS"
+                detail = f"{where} · unwanted {signed(p['unwanted_dbfs'])}{NBSP}dBFS"
             else:
                 detail = f"{where} · unwanted under the noise"
-        self.tiles["sideband"].set_figure(t, worst, "≥" if bound else "", detail or "no wanted tone found")
+        # one tone (a stepped sweep moves it): its own trend; several: the band's worst
+        subject = points[0].get("tone_hz") if len(points) == 1 else tuple(band or ())
+        self.tiles["sideband"].set_figure(t, worst, "≥" if bound else "", detail or "no wanted tone found",
+                                          subject=subject)
         carrier = r.get("carrier_suppression_db")
         if r.get("carrier_detected"):
-            detail = f"{signed(r['carrier_dbfs'])} dBFS at {r['carrier_hz']:.1f} Hz"
+            detail = f"{signed(r['carrier_dbfs'])}{NBSP}dBFS at {hz(r['carrier_hz'], '.1f')}"
         else:
-            detail = "carrier under the noise" + (f" near {r['carrier_hz']:.0f} Hz" if r.get("carrier_hz") else "")
+            detail = "under the noise" + (f" near {hz(r['carrier_hz'], '.0f')}" if r.get("carrier_hz") else "")
         self.tiles["carrier"].set_figure(t, carrier, "" if r.get("carrier_detected") else "≥", detail)
         if isinstance(self.config.signal, TwoTone):
-            self.tiles["imd"].set_unavailable("choose it under Measurement ▸ Figures")
+            self.tiles["imd"].set_unavailable(f"choose it under {menu_path('Measurement', 'Figures')}")
         else:
-            self.tiles["imd"].set_unavailable("a two-tone figure: Generator ▸ Two-tone")
+            self.tiles["imd"].set_unavailable(f"a two-tone figure: {menu_path('Generator', 'Two-tone')}")
 
     def _twotone_tiles(self, t: float, r: dict) -> None:
         worst = r.get("worst_imd_db_pep")
@@ -670,13 +736,77 @@ class MainWindow(QMainWindow):
             if product.get("order") == order:
                 dbc = [product.get(f"{s}_dbc") for s in ("lower", "upper") if product.get(f"{s}_dbc") is not None]
                 if dbc:
-                    detail = f"IMD{order} · {signed(max(dbc))} dBc"
+                    detail = f"IMD{order} · {signed(max(dbc))}{NBSP}dBc"
         if r.get("pep_dbfs") is not None:
-            detail += f" · PEP {signed(r['pep_dbfs'])} dBFS"
+            detail += f" · PEP {signed(r['pep_dbfs'])}{NBSP}dBFS"
         self.tiles["imd"].set_figure(t, worst, "≤" if r.get("worst_imd_is_bound") else "", detail.strip(" ·"))
-        why = "a one-tone figure: Generator ▸ Tone"
+        why = f"a one-tone figure: {menu_path('Generator', 'Tone')}"
         self.tiles["sideband"].set_unavailable(why)
         self.tiles["carrier"].set_unavailable(why)
+
+    def _quadrature_tiles(self, t: float, r: dict) -> None:
+        """A 90° network alone: the worst suppression it allows in the band, and the phase error and
+        amplitude ratio of the strongest tone."""
+        points = [p for p in r.get("points") or [] if p.get("frequency_hz") is not None]
+        band = r.get("band") or {}
+        lo, hi = band.get("low_hz"), band.get("high_hz")
+        worst, f = band.get("worst_predicted_suppression_db"), band.get("worst_frequency_hz")
+        inside = band.get("points") or 0
+        if worst is not None and f is not None:
+            bound = band.get("worst_is_lower_bound")
+            where = f"worst in {band_text(lo, hi)}, at {hz(f)}" if inside > 1 else f"at {hz(f)}"
+        else:  # no tone inside the band: the worst of those measured, said so
+            worst, f = r.get("worst_predicted_suppression_db"), r.get("worst_frequency_hz")
+            bound = r.get("worst_is_lower_bound")
+            where = (f"no tone in {band_text(lo, hi)}" if lo is not None and hi is not None else "no tone in the band")
+            if f is not None:
+                where += f"; worst at {hz(f)}"
+        at_worst = next((p for p in points if f is not None and abs(p["frequency_hz"] - f) < 0.01), None)
+        if bound is None and at_worst is not None:
+            bound = at_worst.get("predicted_suppression_is_bound")
+        if bound:
+            where += " · errors under the noise"
+        subject = points[0]["frequency_hz"] if len(points) == 1 else (lo, hi)  # a sweep step: its own trend
+        self.tiles["sideband"].set_figure(t, worst, "≥" if bound else "", where if worst is not None else
+                                          "no tone clearly above the noise on both channels", subject=subject)
+        p = shown_tone(points)
+        if p is None:
+            for key in ("carrier", "imd"):
+                self.tiles[key].set_unavailable("no tone clearly above the noise on both channels")
+            return
+        # several tones as strong (a multitone): the worst of them is shown, and the title says so
+        self.tiles["carrier"].set_title("Phase error, worst tone" if len(equal_tones(points)) > 1
+                                        else QUADRATURE_TILES["carrier"][0])
+        f = p["frequency_hz"]
+        err, ratio, diff = p.get("phase_error_deg"), p.get("amplitude_ratio_db"), p.get("phase_difference_deg")
+        hidden = bool(p.get("predicted_suppression_is_bound"))
+        k = noise_sigmas()
+        if err is None:
+            self.tiles["carrier"].set_unavailable(f"no phase at {hz(f)}")
+        elif hidden:
+            # Within the noise: the error is at most what the measurement allows, never a number.
+            most = abs(err) + k * (p.get("phase_uncertainty_deg") or 0.0)  # the tile rounds a '≤' up
+            self.tiles["carrier"].set_figure(
+                t, most, "≤", f"at {hz(f)}: under the noise, at most "
+                              f"{math.ceil(most / (360.0 * f) * 1e8 - 1e-6) / 100.0:.2f}{NBSP}µs",
+                subject=f)
+        else:
+            us = err / (360.0 * f) * 1e6
+            lead = "I leads Q" if (diff or 0.0) >= 0 else "Q leads I"
+            detail = f"= {'+' if us > 0 else ''}{signed(us, 2)}{NBSP}µs at {hz(f)}"
+            if diff is not None:
+                detail += f" · {lead} by {abs(diff):.2f}°"
+            self.tiles["carrier"].set_figure(t, err, "", detail, subject=f)
+        if ratio is None:
+            self.tiles["imd"].set_unavailable(f"no ratio at {hz(f)}")
+        elif hidden:
+            most = abs(ratio) + k * (p.get("amplitude_uncertainty_db") or 0.0)
+            self.tiles["imd"].set_figure(t, most, "≤", f"at {hz(f)}: under the noise", subject=f)
+        else:
+            levels = ""
+            if p.get("left_dbfs") is not None and p.get("right_dbfs") is not None:
+                levels = f" · I {signed(p['left_dbfs'])}, Q {signed(p['right_dbfs'])}{NBSP}dBFS"
+            self.tiles["imd"].set_figure(t, ratio, "", f"at {hz(f)}{levels}", subject=f)
 
     def show_frame(self, frame: DisplayFrame) -> None:
         self.last_frame = frame
