@@ -376,3 +376,27 @@ def test_the_text_output_names_the_calibration_applied(tmp_path, capsys, monkeyp
                  "--calibration", "lvl"])
     out = capsys.readouterr().out
     assert code == 0 and "calibration applied: lvl (levels in dBV" in out
+
+
+def test_passband_corrects_a_twotones_carrier_and_unwanted_sidebands():
+    # Every level less the receiver's gain at its own frequency (points placed exactly there, so no
+    # interpolation enters): carrier dBc re the stronger corrected tone, each unwanted sideband re
+    # its own corrected tone (arithmetic of the definitions in measurement-conventions.md).
+    gains = {2107.3: -3.0, 3307.3: -2.0, 4007.3: -1.0, 4707.3: 0.5, 5907.3: 1.5}
+    profile = Profile("passband", "rx", 48000.0, points=tuple(sorted(gains.items())))
+    figures = {"measurement": "twotone", "tone_hz": [4707.3, 5907.3], "tone_dbfs": [-14.0, -13.0], "pep_dbfs": -7.46,
+               "imd": [], "carrier_hz": 4007.3, "carrier_dbfs": -60.0, "carrier_detected": True,
+               "carrier_suppression_db": 47.0,
+               "unwanted": [{"tone_hz": 700.0, "unwanted_hz": 3307.3, "unwanted_dbfs": -46.0, "unwanted_detected": True,
+                             "sideband_suppression_db": 32.0},
+                            {"tone_hz": 1900.0, "unwanted_hz": 2107.3, "unwanted_dbfs": -47.0,
+                             "unwanted_detected": True, "sideband_suppression_db": 34.0}],
+               "warnings": []}
+    out = CalibrationSet((profile,)).finish(figures, Signal(np.zeros(8), 48000.0))
+    tones = [-14.0 - 0.5, -13.0 - 1.5]  # -14.5, -14.5
+    assert out["tone_dbfs"] == pytest.approx(tones)
+    assert out["carrier_dbfs"] == pytest.approx(-59.0)
+    assert out["carrier_suppression_db"] == pytest.approx(max(tones) - (-59.0))
+    assert out["unwanted"][0]["unwanted_dbfs"] == pytest.approx(-44.0)
+    assert out["unwanted"][0]["sideband_suppression_db"] == pytest.approx(tones[0] - (-44.0))
+    assert out["unwanted"][1]["sideband_suppression_db"] == pytest.approx(tones[1] - (-44.0))

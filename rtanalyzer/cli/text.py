@@ -94,6 +94,13 @@ def twotone(r: dict[str, Any]) -> list[str]:
         worst = o["worst_db_pep"]
         worst_text = "—" if worst is None else (f"below {worst:.1f}" if o["worst_is_bound"] else f"{worst:.1f}") + " dB PEP"
         lines.append(f"IMD{o['order']:<2}  {cells[0]:>30}  {cells[1]:>30}  {worst_text}")
+    if r.get("carrier_suppression_db") is not None:  # known with --carrier
+        bound = "" if r["carrier_detected"] else "not detected, at least "
+        lines.append(f"carrier  {_hz(r['carrier_hz'])}  {bound}{r['carrier_suppression_db']:.1f} dBc")
+    for u in r.get("unwanted") or []:
+        bound = "" if u["unwanted_detected"] else "not detected, at least "
+        lines.append(f"unwanted sideband of the {u['tone_hz']:g} Hz tone at {_hz(u['unwanted_hz'])}: "
+                     f"{bound}{u['sideband_suppression_db']:.1f} dB down")
     return lines + _footer(r)
 
 

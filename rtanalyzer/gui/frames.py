@@ -210,7 +210,28 @@ def _twotone_markers(result: dict[str, Any]) -> tuple[Marker, ...]:
             elif pep is not None and product.get(f"{side}_db_pep") is not None:
                 level = pep + product[f"{side}_db_pep"]
                 markers.append(Marker("imd", f, level, False, f"IMD{order}\n≤ {_db(dbc)} dBc"))
+    markers += _twotone_context(result, levels)
     return tuple(markers)
+
+
+def _twotone_context(result: dict[str, Any], levels: list) -> list[Marker]:
+    """The carrier and the unwanted sidebands of a two-tone (known when its carrier was given)."""
+    out: list[Marker] = []
+    for u, level in zip(result.get("unwanted") or [], levels):
+        supp = u.get("sideband_suppression_db")
+        if u.get("unwanted_detected") and u.get("unwanted_dbfs") is not None:
+            out.append(Marker("unwanted", u["unwanted_hz"], u["unwanted_dbfs"], True,
+                              f"unwanted\n{_db(supp)} dB down"))
+        elif supp is not None and level is not None:
+            out.append(Marker("unwanted", u["unwanted_hz"], level - supp, False, f"unwanted\n≥ {_db(supp)} dB down"))
+    if result.get("carrier_hz") is not None and result.get("carrier_suppression_db") is not None:
+        supp = result["carrier_suppression_db"]
+        if result.get("carrier_detected") and result.get("carrier_dbfs") is not None:
+            out.append(Marker("carrier", result["carrier_hz"], result["carrier_dbfs"], True, f"carrier\n{_db(supp)} dBc"))
+        elif levels:
+            out.append(Marker("carrier", result["carrier_hz"], max(levels) - supp, False,
+                              f"carrier not seen\n≥ {_db(supp)} dBc"))
+    return out
 
 
 def _passband_corrected(result: dict[str, Any]) -> bool:

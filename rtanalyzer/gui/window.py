@@ -740,9 +740,21 @@ class MainWindow(QMainWindow):
         if r.get("pep_dbfs") is not None:
             detail += f" · PEP {signed(r['pep_dbfs'])}{NBSP}dBFS"
         self.tiles["imd"].set_figure(t, worst, "≤" if r.get("worst_imd_is_bound") else "", detail.strip(" ·"))
-        why = f"a one-tone figure: {menu_path('Generator', 'Tone')}"
-        self.tiles["sideband"].set_unavailable(why)
-        self.tiles["carrier"].set_unavailable(why)
+        # With the carrier known, a two-tone also shows its carrier and unwanted sidebands.
+        unwanted = [u for u in r.get("unwanted") or [] if u.get("sideband_suppression_db") is not None]
+        if unwanted:
+            u = min(unwanted, key=lambda q: q["sideband_suppression_db"])
+            where = f"worse of the two, the {u['tone_hz']:g}{NBSP}Hz tone's"
+            self.tiles["sideband"].set_figure(t, u["sideband_suppression_db"], "" if u["unwanted_detected"] else "≥",
+                                              where)
+        else:
+            self.tiles["sideband"].set_unavailable(f"a one-tone figure: {menu_path('Generator', 'Tone')}")
+        carrier = r.get("carrier_suppression_db")
+        if carrier is not None:
+            near = f"at {r['carrier_hz']:.0f}{NBSP}Hz" if r.get("carrier_detected") else "under the noise"
+            self.tiles["carrier"].set_figure(t, carrier, "" if r.get("carrier_detected") else "≥", near)
+        else:
+            self.tiles["carrier"].set_unavailable(f"give the carrier: {menu_path('Frequency plan', 'Carrier at')}")
 
     def _quadrature_tiles(self, t: float, r: dict) -> None:
         """A 90° network alone: the worst suppression it allows in the band, and the phase error and

@@ -585,6 +585,24 @@ def _correct_twotone(out: dict[str, Any], gain: Callable[[float | None], float])
         out["worst_imd_order"] = worst["order"]
         out["worst_imd_db_pep"] = worst["worst_db_pep"]
         out["worst_imd_is_bound"] = worst["worst_is_bound"]
+    # The carrier and unwanted sidebands (present with --carrier), each at its own frequency.
+    if out.get("carrier_hz") is not None and out.get("carrier_suppression_db") is not None:
+        g = gain(out["carrier_hz"])
+        # re the stronger corrected tone: (ref) - (carrier - g) = old figure + (ref - old_ref) + g
+        out["carrier_suppression_db"] = round(out["carrier_suppression_db"] + ref - old_ref + g, 3)
+        if out.get("carrier_dbfs") is not None:
+            out["carrier_dbfs"] = round(out["carrier_dbfs"] - g, 3)
+    corrected = []
+    for u, f in zip(out.get("unwanted") or [], out["tone_hz"]):
+        q = dict(u)
+        gw, gu = gain(f), gain(u["unwanted_hz"])
+        if q.get("unwanted_dbfs") is not None:
+            q["unwanted_dbfs"] = round(q["unwanted_dbfs"] - gu, 3)
+        if q.get("sideband_suppression_db") is not None:
+            q["sideband_suppression_db"] = round(q["sideband_suppression_db"] - gw + gu, 3)
+        corrected.append(q)
+    if corrected:
+        out["unwanted"] = corrected
     return out
 
 

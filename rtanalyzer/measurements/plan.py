@@ -91,7 +91,7 @@ def out_of_range(spectrum: Spectrum, frequency_hz: float) -> str | None:
             return f"lies beyond the Nyquist frequency (+/-{spectrum.nyquist_hz:g} Hz) of the I/Q capture"
         return None
     if frequency_hz < 0:
-        return f"lies below 0 Hz and folds onto {abs(frequency_hz):g} Hz in a real capture (use --iq or a higher carrier)"
+        return f"lies below 0 Hz and folds onto {abs(frequency_hz):.1f} Hz in a real capture (use --iq or a higher carrier)"
     if frequency_hz < g:
         return f"lies within {g:.1f} Hz of 0 Hz, where a real capture cannot separate it from DC"
     if frequency_hz > spectrum.nyquist_hz - g:

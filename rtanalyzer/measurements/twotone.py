@@ -72,6 +72,10 @@ class TwoToneResult:
     clipped: bool
     signal_label: str
     warnings: tuple[str, ...] = field(default=())
+    # Known only with --carrier: the carrier and each tone's unwanted sideband, for the record
+    # and the display (a two-tone's IMD figures do not depend on them).
+    carrier: Component | None = None
+    unwanted: tuple[tuple[float, Component], ...] = ()
 
     @property
     def pep_dbfs(self) -> float:
@@ -109,6 +113,26 @@ class TwoToneResult:
             f"{side}_detected": p.detected,
         }
 
+    def _context_json(self) -> dict[str, Any]:
+        """Carrier (dBc below the stronger tone) and unwanted sidebands (dB below their tone)."""
+        c = self.carrier
+        unwanted = []
+        for (tone_hz, u), t in zip(self.unwanted, self.tones):  # both low tone first
+            unwanted.append({
+                "tone_hz": tone_hz,
+                "unwanted_hz": rounded(u.frequency_hz),
+                "unwanted_dbfs": rounded(u.level_dbfs),
+                "unwanted_detected": u.detected,
+                "sideband_suppression_db": rounded(t.level_dbfs - u.bound_dbfs),
+            })
+        return {
+            "carrier_hz": rounded(c.frequency_hz) if c else None,
+            "carrier_dbfs": rounded(c.level_dbfs) if c else None,
+            "carrier_detected": c.detected if c else None,
+            "carrier_suppression_db": rounded(self.reference_dbfs - c.bound_dbfs) if c else None,
+            "unwanted": unwanted,
+        }
+
     def to_json(self) -> dict[str, Any]:
         imd = []
         for o in self.orders:
@@ -134,6 +158,7 @@ class TwoToneResult:
             "worst_imd_order": order,
             "worst_imd_db_pep": rounded(worst),
             "worst_imd_is_bound": is_bound,
+            **self._context_json(),
             "noise_floor_dbfs": rounded(self.noise_floor_dbfs),
             "analysis_bandwidth_hz": rounded(self.analysis_bandwidth_hz, 4),
             "clipped": self.clipped,
@@ -222,6 +247,20 @@ class TwoToneMeasurement:
                 else:
                     products.append(Product(f, measure_at(spectrum, f, everything)))
             orders.append(ImdOrder(order, *products))
+        carrier, unwanted = None, ()
+        if lock is not None:
+            # Measured where they do not collide with a product (the products stay the figures).
+            products = tuple(f for pair in planned.values() for f in pair)
+            guard = guard_hz(spectrum)
+
+            def context(f: float) -> Component | None:
+                if out_of_range(spectrum, f) or any(abs(f - g) < guard for g in products):
+                    return None
+                return measure_at(spectrum, f, everything)
+
+            carrier = context(lock.carrier_hz)
+            pairs = [(t, context(lock.unwanted_hz(t))) for t in (f1, f2)]
+            unwanted = tuple((t, u) for t, u in pairs if u is not None) if all(u for _, u in pairs) else ()
         levels = [t.level_dbfs for t in tones]
         if abs(levels[0] - levels[1]) > IMBALANCE_NOTE_DB:
             warnings.append(
@@ -236,6 +275,8 @@ class TwoToneMeasurement:
             clipped=signal.clipped,
             signal_label=signal.label,
             warnings=tuple(warnings),
+            carrier=carrier,
+            unwanted=unwanted,
         )
 
 
