@@ -104,6 +104,15 @@ def write_wav(path: Path, samples: np.ndarray, rate: int = 48000, subtype: str =
     return path
 
 
+def run_cli(argv, capsys) -> tuple[int, str, str]:
+    """Run the ``rtanalyzer`` command line in-process: (exit code, stdout, stderr)."""
+    from rtanalyzer.cli.main import main
+
+    code = main([str(a) for a in argv])
+    out = capsys.readouterr()
+    return code, out.out, out.err
+
+
 def file_digest(path: Path) -> str | None:
     """SHA-256 of a file's bytes, or None when it does not exist."""
     try:

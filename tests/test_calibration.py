@@ -8,6 +8,7 @@ import numpy as np
 import pytest
 
 from conftest import write_wav
+from conftest import run_cli as cli
 from rtanalyzer.cli.main import main
 from rtanalyzer.errors import CaptureError, MeasurementError
 from rtanalyzer.measurements.calibration import (
@@ -42,12 +43,6 @@ def multitone(seconds=2.0, seed=0):
     t = np.arange(int(seconds * RATE)) / RATE
     phases = np.random.default_rng(seed).uniform(0, 2 * np.pi, TONES.size)
     return sum(0.08 * np.cos(2 * np.pi * f * t + p) for f, p in zip(TONES, phases))
-
-
-def cli(argv, capsys):
-    code = main([str(a) for a in argv])
-    out = capsys.readouterr()
-    return code, out.out, out.err
 
 
 def test_channel_mismatch_is_removed_to_target(tmp_path, capsys):

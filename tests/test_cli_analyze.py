@@ -17,7 +17,7 @@ import numpy as np
 import pytest
 
 from conftest import file_digest, sigma_for_bin_level, synth, write_wav
-from rtanalyzer.cli.main import main
+from conftest import run_cli as run
 
 RATE = 48000
 NOISE = sigma_for_bin_level(-115.0, 32768)  # ~ a good 24-bit card per 1.5 Hz bin (common practice, no source)
@@ -27,12 +27,6 @@ ROOT = Path(__file__).resolve().parents[1]
 @pytest.fixture(autouse=True)
 def _quiet(cautions_already_shown):
     """Every test here runs as a user who has already seen the first-run safety notice."""
-
-
-def run(argv, capsys):
-    code = main([str(a) for a in argv])
-    out = capsys.readouterr()
-    return code, out.out, out.err
 
 
 def sideband_wav(tmp_path, name="sb.wav", suppression=40.0, carrier_db=50.0, **kw):

@@ -19,6 +19,7 @@ from pathlib import Path
 
 import pytest
 
+from conftest import run_cli as run
 from rtanalyzer.cli.main import main
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -33,12 +34,6 @@ SIDEBAND_KEYS = {
 @pytest.fixture(autouse=True)
 def _quiet(cautions_already_shown):
     """Every test here runs as a user who has already seen the first-run safety notice."""
-
-
-def run(argv, capsys):
-    code = main([str(a) for a in argv])
-    out = capsys.readouterr()
-    return code, out.out, out.err
 
 
 def jsonl(out: str) -> list[dict]:

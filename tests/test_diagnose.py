@@ -11,7 +11,6 @@ import pytest
 
 from conftest import write_wav
 from rtanalyzer.cli.main import main
-from rtanalyzer.dsp.quadrature import image_rejection_db
 from rtanalyzer.errors import MeasurementError
 from rtanalyzer.measurements.diagnosis import diagnose_quadrature, diagnose_sideband, probe
 from rtanalyzer.measurements.network_design import read_network

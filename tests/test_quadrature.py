@@ -15,7 +15,7 @@ import scipy.signal
 import soundfile as sf
 
 from conftest import write_wav
-from rtanalyzer.cli.main import main
+from conftest import run_cli as run
 from rtanalyzer.cli.progress import terminal_progress
 from rtanalyzer.dsp.quadrature import image_rejection_db, pair_phasors, wrap_deg
 from rtanalyzer.errors import MeasurementError
@@ -57,12 +57,6 @@ def pair(freqs, diff_deg, ratio_db, seconds=2.0, level=0.4, seed=0, quantize=Tru
 
 def signal_of(left, right):
     return Signal(left + 1j * right, float(RATE), label="stereo")
-
-
-def run(argv, capsys):
-    code = main([str(a) for a in argv])
-    out = capsys.readouterr()
-    return code, out.out, out.err
 
 
 # ---- the image-rejection relation ---------------------------------------------------------

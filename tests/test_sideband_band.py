@@ -10,11 +10,10 @@ from __future__ import annotations
 
 import json
 
-import numpy as np
 import pytest
 
 from conftest import capture_of, sigma_for_bin_level, synth, write_wav
-from rtanalyzer.cli.main import main
+from conftest import run_cli as run
 from rtanalyzer.errors import MeasurementError
 from rtanalyzer.measurements.sideband import SidebandMeasurement, worst_in_band
 
@@ -45,12 +44,6 @@ def measure(settings):
     out = r.to_json()
     json.dumps(out, allow_nan=False)
     return out
-
-
-def run(argv, capsys):
-    code = main([str(a) for a in argv])
-    out = capsys.readouterr()
-    return code, out.out, out.err
 
 
 def cli_argv(wav, *extra):
