@@ -35,6 +35,8 @@ from rtanalyzer.store.schema import APPLICATION_ID, CURRENT_VERSION, migrate
 from rtanalyzer.store.snapshot import (
     FIGURE_BITS,
     IMD_ORDERS,
+    NUMBER_FIELDS,
+    TEXT_FIELDS,
     Snapshot,
     SnapshotSummary,
     bound_flags,
@@ -274,15 +276,7 @@ class SnapshotStore:
     def _insert(self, c: sqlite3.Connection, s: Snapshot, keep_id: bool) -> int:
         figures = key_figures(s.result)
         values: dict[str, Any] = {
-            "uid": s.uid,
-            "created_utc": s.created_utc,
-            "created_epoch": s.created_epoch,
-            "rig": s.rig,
-            "origin": s.origin,
-            "measurement": s.measurement,
-            "source": s.source,
-            "device": s.device,
-            "sample_rate_hz": s.sample_rate_hz,
+            **{f: getattr(s, f) for f in (*TEXT_FIELDS, *NUMBER_FIELDS)},
             "plan_json": _dump(s.plan),
             "generator_json": None if s.generator is None else _dump(s.generator),
             "setup_json": _dump(s.setup),

@@ -25,7 +25,7 @@ from pathlib import Path
 from typing import Any, Iterable
 
 from rtanalyzer.store.errors import StoreError
-from rtanalyzer.store.snapshot import Snapshot, key_figures
+from rtanalyzer.store.snapshot import NUMBER_FIELDS, TEXT_FIELDS, Snapshot, key_figures
 from rtanalyzer.store.spectrum import CompactSpectrum
 
 FORMAT_NAME = "rtanalyzer-history"
@@ -44,15 +44,7 @@ def snapshot_to_json(s: Snapshot) -> dict[str, Any]:
     """Every field of a snapshot as plain JSON (spectrum levels in base64 float32 LE)."""
     return {
         "id": s.id,
-        "uid": s.uid,
-        "created_utc": s.created_utc,
-        "created_epoch": s.created_epoch,
-        "rig": s.rig,
-        "origin": s.origin,
-        "measurement": s.measurement,
-        "source": s.source,
-        "device": s.device,
-        "sample_rate_hz": s.sample_rate_hz,
+        **{f: getattr(s, f) for f in (*TEXT_FIELDS, *NUMBER_FIELDS)},
         "plan": s.plan,
         "generator": s.generator,
         "setup": s.setup,
@@ -84,15 +76,9 @@ def _spectrum_from(header: dict[str, Any], levels_b64: str) -> CompactSpectrum:
 def snapshot_from_json(d: dict[str, Any]) -> Snapshot:
     spectrum = d.get("spectrum")
     return Snapshot(
-        measurement=d["measurement"],
+        **{f: d[f] for f in TEXT_FIELDS},
+        **{f: float(d[f]) for f in NUMBER_FIELDS},
         result=d["result"],
-        created_utc=d["created_utc"],
-        created_epoch=float(d["created_epoch"]),
-        rig=d["rig"],
-        origin=d["origin"],
-        source=d["source"],
-        device=d["device"],
-        sample_rate_hz=float(d["sample_rate_hz"]),
         plan=d["plan"],
         generator=d.get("generator"),
         setup=d.get("setup") or {},
@@ -104,7 +90,6 @@ def snapshot_from_json(d: dict[str, Any]) -> Snapshot:
         note=d.get("note") or "",
         tags=tuple(d.get("tags") or ()),
         id=None if d.get("id") is None else int(d["id"]),
-        uid=d["uid"],
     )
 
 
@@ -130,9 +115,8 @@ def _csv_text(snapshots: list[Snapshot]) -> str:
         d = snapshot_to_json(s)
         figures = key_figures(s.result)
         row = {
-            **{k: d[k] for k in ("id", "created_utc", "rig", "measurement", "note", "origin", "source", "device", "uid")},
-            "created_epoch": repr(s.created_epoch),
-            "sample_rate_hz": repr(s.sample_rate_hz),
+            **{k: d[k] for k in ("id", "note", *TEXT_FIELDS)},
+            **{k: repr(d[k]) for k in NUMBER_FIELDS},
             **{k: "" if v is None else repr(v) for k, v in figures.items()},
             "tags": json.dumps(list(s.tags)),
             "clipped": "1" if s.clipped else "0",
@@ -201,15 +185,9 @@ def _from_csv_text(path: Path, text: str) -> list[Snapshot]:
             spectrum = _spectrum_from(json.loads(row["spectrum_json"]), row["spectrum_levels_b64"])
         out.append(
             Snapshot(
-                measurement=row["measurement"],
+                **{f: row[f] for f in TEXT_FIELDS},
+                **{f: float(row[f]) for f in NUMBER_FIELDS},
                 result=json.loads(row["result_json"]),
-                created_utc=row["created_utc"],
-                created_epoch=float(row["created_epoch"]),
-                rig=row["rig"],
-                origin=row["origin"],
-                source=row["source"],
-                device=row["device"],
-                sample_rate_hz=float(row["sample_rate_hz"]),
                 plan=json.loads(row["plan_json"]),
                 generator=json.loads(row["generator_json"]),
                 setup=json.loads(row["setup_json"]),
@@ -221,7 +199,6 @@ def _from_csv_text(path: Path, text: str) -> list[Snapshot]:
                 note=row["note"],
                 tags=tuple(json.loads(row["tags"])),
                 id=int(row["id"]) if row["id"] else None,
-                uid=row["uid"],
             )
         )
     return out

@@ -68,6 +68,11 @@ def iso_utc(epoch: float) -> str:
     return text.replace("+00:00", "Z")
 
 
+#: Snapshot fields kept as plain text, and as numbers, in every stored and exported form.
+TEXT_FIELDS = ("uid", "created_utc", "rig", "origin", "measurement", "source", "device")
+NUMBER_FIELDS = ("created_epoch", "sample_rate_hz")
+
+
 @dataclass(frozen=True)
 class Snapshot:
     """One stored measurement.
