@@ -40,6 +40,7 @@ from __future__ import annotations
 
 import dataclasses
 import datetime as _dt
+import functools
 import os
 import re
 from dataclasses import dataclass, field
@@ -488,14 +489,19 @@ def passband_gain_db(profile: Profile, frequency_hz: float) -> tuple[float, bool
     frequency: a receiver's skirts are smooth curves there, which straight lines between sparse
     points cut short by tenths of a dB, and PCHIP never overshoots the points.
     """
+    f = abs(float(frequency_hz))
+    low, high = profile.points[0][0], profile.points[-1][0]
+    x = float(np.clip(np.log(max(f, 1e-3)), np.log(low), np.log(high)))
+    return float(_gain_curve(profile.points)(x)), bool(low <= f <= high)
+
+
+@functools.lru_cache(maxsize=8)
+def _gain_curve(points: tuple[tuple[float, float], ...]):
+    """The PCHIP through a profile's points in log frequency, built once per profile (a live
+    session reads it for every component of every readout)."""
     from scipy.interpolate import PchipInterpolator
 
-    f = abs(float(frequency_hz))
-    fs = np.array([p[0] for p in profile.points])
-    gs = np.array([p[1] for p in profile.points])
-    inside = bool(fs[0] <= f <= fs[-1])
-    x = float(np.clip(np.log(max(f, 1e-3)), np.log(fs[0]), np.log(fs[-1])))
-    return float(PchipInterpolator(np.log(fs), gs)(x)), inside
+    return PchipInterpolator(np.log([p[0] for p in points]), [p[1] for p in points])
 
 
 def _gain_reader(profile: Profile) -> tuple[Callable[[float | None], float], list[float]]:
