@@ -158,7 +158,7 @@ def plan_settings(config: SessionConfig, measurement: str) -> dict[str, Any]:
     settings: dict[str, Any] = {"carrier": carrier, "wanted": wanted or "auto"}
     if config.resolution_hz is not None:
         settings["resolution"] = config.resolution_hz
-    if config.band_hz is not None and measurement in ("sideband", "quadrature"):
+    if config.band_hz is not None and _takes(measurement, "band"):
         settings["band"] = list(config.band_hz)
     if measurement == "quadrature":  # carrier and side kept for the window's plan changes; unused
         return {**settings, **_quadrature_settings(config)}
@@ -172,6 +172,13 @@ def plan_settings(config: SessionConfig, measurement: str) -> dict[str, Any]:
     else:
         settings["tone"] = tones
     return settings
+
+
+def _takes(measurement: str, parameter: str) -> bool:
+    """Does the measurement plugin declare this parameter?"""
+    from rtanalyzer.measurements.registry import get
+
+    return any(p.name == parameter for p in get(measurement).parameters)
 
 
 def _quadrature_settings(config: SessionConfig) -> dict[str, Any]:
