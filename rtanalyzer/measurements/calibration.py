@@ -77,8 +77,6 @@ MAX_CHANNEL_PHASE_DEG = 20.0  # at 0 Hz, once the delay is fitted
 MAX_CHANNEL_DELAY_S = 1e-3
 #: Largest departure from gain + phase + delay it accepts, degrees rms over the tones.
 MAX_CHANNEL_RESIDUAL_DEG = 2.0
-#: Measurements whose levels at audio frequencies a passband profile corrects.
-PASSBAND_MEASUREMENTS = ("sideband", "twotone")
 
 
 @dataclass(frozen=True)
@@ -459,14 +457,9 @@ class CalibrationSet:
         warnings = list(out.get("warnings", []))
         passband = self._get("passband")
         if passband is not None:
-            if out.get("measurement") not in PASSBAND_MEASUREMENTS:
-                raise MeasurementError(
-                    f"calibration '{passband.name}' (passband) applies to {' and '.join(PASSBAND_MEASUREMENTS)} "
-                    f"measurements, not to {out.get('measurement')}"
-                )
-            correct = _correct_sideband if out["measurement"] == "sideband" else _correct_twotone
+            self.check(out.get("measurement"), signal.is_complex)
             gain, outside = _gain_reader(passband)
-            out = correct(out, gain)
+            out = PASSBAND_CORRECTIONS[out["measurement"]](out, gain)
             if outside:
                 warnings.append(
                     f"passband calibration '{passband.name}' covers {passband.points[0][0]:g}-"
@@ -610,6 +603,11 @@ def _correct_twotone(out: dict[str, Any], gain: Callable[[float | None], float])
     if corrected:
         out["unwanted"] = corrected
     return out
+
+
+#: The measurements whose levels at audio frequencies a passband profile corrects, and how.
+PASSBAND_CORRECTIONS = {"sideband": _correct_sideband, "twotone": _correct_twotone}
+PASSBAND_MEASUREMENTS = tuple(PASSBAND_CORRECTIONS)
 
 
 def _add_volts(out: dict[str, Any], profile: Profile, signal: Signal) -> dict[str, Any]:
